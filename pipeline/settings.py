@@ -1,0 +1,114 @@
+"""Build settings: documented defaults, ``statherm.yaml``, species ``fit:``, flags.
+
+Precedence (highest first): command-line flags, the species file's ``fit:``
+block (for tmin/tmid/tmax), the database's ``statherm.yaml``, the defaults
+below.
+
+``statherm.yaml`` keys (all optional)::
+
+    pressure: bar          # bar (IUPAC, default) | atm
+    tmin: 200              # K, low end of the fit and tables
+    tmid: auto             # auto (search, see pipeline.fit) or a temperature [K]
+    tmax: 6000             # K
+    grid_step: 10          # K, spacing of the grid the fit uses
+    table_step: 100        # K, spacing of output/tables/*.csv (298.15 K added)
+    cp_warning: 0.005      # relative max Cp error above which a fit is flagged
+    plots: false           # write output/plots/ (needs the 'plot' extra)
+    jobs: 1                # worker processes for builds
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from scipy import constants as C
+
+from pipeline.diagnostics import Diagnostic, InputError
+
+
+@dataclass(frozen=True)
+class Settings:
+    """Resolved settings for one build (see module docstring for the keys)."""
+
+    pressure: str = "bar"
+    tmin: float = 200.0
+    tmid: float | str = "auto"
+    tmax: float = 6000.0
+    grid_step: float = 10.0
+    table_step: float = 100.0
+    cp_warning: float = 0.005
+    plots: bool = False
+    jobs: int = 1
+
+    @property
+    def pressure_pa(self) -> float:
+        return {"bar": C.bar, "atm": C.atm}[self.pressure]
+
+    def replace(self, **changes: Any) -> "Settings":
+        return dataclasses.replace(self, **{k: v for k, v in changes.items() if v is not None})
+
+    def for_species(self, species) -> "Settings":
+        """These settings with the species file's ``fit:`` overrides applied."""
+        f = species.fit
+        return self.replace(tmin=f.tmin, tmid=f.tmid, tmax=f.tmax)
+
+    def model_key(self) -> dict:
+        """The settings that change computed numbers (cache keys, provenance)."""
+        d = dataclasses.asdict(self)
+        d.pop("jobs")
+        d.pop("plots")
+        return d
+
+
+SETTINGS_FILE = "statherm.yaml"
+
+
+def load_settings(database: str | Path, base: Settings | None = None) -> Settings:
+    """Read ``statherm.yaml`` from the database folder (if present) over the defaults."""
+    from pipeline.species import _Checker, check_ranges, load_yaml
+
+    base = base or Settings()
+    path = Path(database) / SETTINGS_FILE
+    if not path.exists():
+        return base
+    file = path.as_posix()
+    try:
+        doc = load_yaml(path.read_text(encoding="utf-8"))
+    except Exception as exc:  # yaml errors, decoding errors
+        raise InputError([Diagnostic(file, "", f"cannot be read as YAML: {str(exc).splitlines()[0]}")]) from None
+    if doc is None:
+        return base
+    ck = _Checker(file)
+    m = ck.mapping(doc, "")
+    if m is None:
+        raise InputError(ck.diagnostics)
+    fields = {f.name for f in dataclasses.fields(Settings)}
+    ck.keys(m, fields, "")
+    values: dict[str, Any] = {}
+    if "pressure" in m:
+        if m["pressure"] not in ("bar", "atm"):
+            ck.error("pressure", f"{m['pressure']!r} is not 'bar' or 'atm'")
+        else:
+            values["pressure"] = m["pressure"]
+    for key in ("tmin", "tmax", "grid_step", "table_step", "cp_warning"):
+        if key in m:
+            values[key] = ck.number(m[key], key, positive=True)
+    if "tmid" in m:
+        values["tmid"] = "auto" if m["tmid"] == "auto" else ck.number(m["tmid"], "tmid", positive=True)
+    if "plots" in m:
+        if not isinstance(m["plots"], bool):
+            ck.error("plots", f"{m['plots']!r} is not true or false")
+        else:
+            values["plots"] = m["plots"]
+    if "jobs" in m:
+        values["jobs"] = ck.integer(m["jobs"], "jobs", minimum=1)
+    if not ck.failed:
+        tmid = values.get("tmid", base.tmid)
+        check_ranges(ck, values.get("tmin", base.tmin), None if tmid == "auto" else tmid,
+                     values.get("tmax", base.tmax), "")
+    if ck.failed:
+        raise InputError(ck.diagnostics)
+    return base.replace(**values)
