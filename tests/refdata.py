@@ -1,0 +1,48 @@
+"""Reference data for tests.
+
+Reference thermochemistry comes from the NASA TM-4513-form seven-coefficient
+data that the cantera package ships: ``gri30.yaml`` (GRI-Mech 3.0 thermo) first,
+``nasa_gas.yaml`` (NASA Glenn gas-phase database) for species GRI-Mech lacks.
+"""
+
+from __future__ import annotations
+
+import functools
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parent.parent
+SPECIES_DIR = ROOT / "species"
+
+#: statherm record name → name in cantera's bundled files where they differ
+ALIASES = {"HE": "He", "AR": "AR"}
+
+
+@functools.lru_cache(maxsize=None)
+def _cantera_species():
+    import cantera as ct
+
+    out = {}
+    for source in ("nasa_gas.yaml", "gri30.yaml"):  # later files win: GRI-Mech first
+        for sp in ct.Species.list_from_file(source):
+            out[sp.name.upper()] = (sp, source)
+    return out
+
+
+def reference(name: str):
+    """(cantera Species, source file) of the published coefficients for ``name``, or None."""
+    table = _cantera_species()
+    return table.get(ALIASES.get(name, name).upper())
+
+
+def reference_cp(name: str, T) -> np.ndarray:
+    """Cp [J/mol/K] from the bundled seven-coefficient data at temperatures T [K]."""
+    sp, _ = reference(name)
+    return np.array([sp.thermo.cp(float(t)) for t in np.atleast_1d(T)]) / 1e3
+
+
+def reference_s(name: str, T) -> np.ndarray:
+    """S [J/mol/K] (cantera's data are at 1 bar unless the source says otherwise)."""
+    sp, _ = reference(name)
+    return np.array([sp.thermo.s(float(t)) for t in np.atleast_1d(T)]) / 1e3
