@@ -149,6 +149,7 @@ class Torsion:
     symmetry: int
     moment: float  # [kg m^2]
     fourier: tuple[float, ...] = ()
+    barrier_uncertainty: float | None = None  # standard uncertainty of ``barrier`` [J/mol]
 
 
 @dataclass(frozen=True)
@@ -173,6 +174,10 @@ class Species:
     diatomic: Diatomic | None = None
     torsions: tuple[Torsion, ...] = ()
     fit: FitOptions = field(default_factory=FitOptions)
+    # standard uncertainties (None: not given); see pipeline.uncertainty
+    frequency_scale_uncertainty: float | None = None  # of the scale factor [-]
+    frequency_uncertainties: tuple[float, ...] | None = None  # per mode [m^-1], scale applied
+    rotor_uncertainty: float | None = None  # relative, all rotational constants together [-]
     path: str = ""
     sha256: str = ""
 
@@ -331,7 +336,7 @@ def _read_rotor(ck: _Checker, raw: Any, shape: str | None) -> tuple[float, ...] 
     if m is None:
         return None
     kinds = [k for k in ("constants", "moments", "geometry") if k in m]
-    ck.keys(m, {"constants", "moments", "geometry", "unit"}, "rotor")
+    ck.keys(m, {"constants", "moments", "geometry", "unit", "uncertainty"}, "rotor")
     if len(kinds) != 1:
         ck.error("rotor", "give exactly one of 'constants', 'moments' or 'geometry'")
         return None
@@ -368,11 +373,13 @@ def _read_rotor(ck: _Checker, raw: Any, shape: str | None) -> tuple[float, ...] 
     return tuple(sorted(consts, reverse=True))
 
 
-def _read_vibrations(ck: _Checker, raw: Any) -> tuple[tuple[float, ...], float] | None:
+def _read_vibrations(ck: _Checker, raw: Any):
+    """(frequencies [m^-1], scale, u(scale) or None, per-mode u [m^-1] or None) or None."""
     m = ck.mapping(raw, "vibrations")
     if m is None:
         return None
-    ck.keys(m, {"frequencies", "unit", "scale"}, "vibrations", required=("frequencies",))
+    ck.keys(m, {"frequencies", "unit", "scale", "scale_uncertainty", "uncertainties"}, "vibrations",
+            required=("frequencies",))
     if "frequencies" not in m:
         return None
     freqs = ck.numbers(m["frequencies"], "vibrations.frequencies")
@@ -387,9 +394,40 @@ def _read_vibrations(ck: _Checker, raw: Any) -> tuple[tuple[float, ...], float] 
                 f"{f!r} is {'zero' if f == 0 else 'negative'} (imaginary mode?) — remove it "
                 "or describe it as a torsion",
             )
+    u_scale = u_freqs = None
+    if m.get("scale_uncertainty") is not None:
+        u_scale = ck.number(m["scale_uncertainty"], "vibrations.scale_uncertainty", nonnegative=True)
+        if u_scale is not None and u_scale >= scale:
+            ck.error("vibrations.scale_uncertainty", f"{u_scale!r} is not below the scale factor {scale!r}")
+    if m.get("uncertainties") is not None:
+        u_freqs = ck.numbers(m["uncertainties"], "vibrations.uncertainties")
+        if u_freqs is not None and len(u_freqs) != len(freqs):
+            ck.error("vibrations.uncertainties",
+                     f"{len(u_freqs)} given for {len(freqs)} frequencies (one per frequency, same unit)")
+        for i, (u, f) in enumerate(zip(u_freqs or (), freqs)):
+            if u < 0 or u >= f:
+                ck.error(f"vibrations.uncertainties[{i}]",
+                         f"{u!r} is not between 0 and its frequency {f!r}")
     if ck.failed:
         return None
-    return tuple(f * scale * units.WAVENUMBER[unit] for f in freqs), scale
+    factor = scale * units.WAVENUMBER[unit]
+    return (
+        tuple(f * factor for f in freqs),
+        scale,
+        u_scale,
+        None if u_freqs is None else tuple(u * factor for u in u_freqs),
+    )
+
+
+def _read_rotor_uncertainty(ck: _Checker, raw: Any) -> float | None:
+    """``rotor.uncertainty``: relative standard uncertainty of all rotational constants [-]."""
+    if not isinstance(raw, dict) or raw.get("uncertainty") is None:
+        return None
+    u = ck.number(raw["uncertainty"], "rotor.uncertainty", nonnegative=True)
+    if u is not None and u >= 0.5:
+        ck.error("rotor.uncertainty", f"{u!r} is a relative uncertainty (e.g. 0.01 for 1 %); expected below 0.5")
+        return None
+    return u
 
 
 def _read_electronic(ck: _Checker, raw: Any) -> tuple[tuple[int, float], ...] | None:
@@ -565,11 +603,13 @@ def _build(ck: _Checker, doc: dict, digest: str) -> Species | None:
                 ck.error(key, "give either a 'diatomic' block or rotor/vibrations, not both")
 
     rotor: tuple[float, ...] = ()
+    u_rotor = None
     if doc.get("rotor") is not None:
         if shape == "atom":
             ck.error("rotor", "an atom has no rotor; remove this block")
         else:
             rotor = _read_rotor(ck, doc["rotor"], shape) or ()
+            u_rotor = _read_rotor_uncertainty(ck, doc["rotor"])
     elif shape in ("linear", "nonlinear") and diatomic is None:
         ck.error("rotor", f"missing required key for a {shape} molecule (constants, moments or geometry)")
 
@@ -581,13 +621,14 @@ def _build(ck: _Checker, doc: dict, digest: str) -> Species | None:
 
     freqs: tuple[float, ...] = ()
     scale = 1.0
+    u_scale = u_freqs = None
     if doc.get("vibrations") is not None:
         if shape == "atom":
             ck.error("vibrations", "an atom has no vibrations; remove this block")
         else:
             vib = _read_vibrations(ck, doc["vibrations"])
             if vib is not None:
-                freqs, scale = vib
+                freqs, scale, u_scale, u_freqs = vib
     if shape in ("linear", "nonlinear") and natoms and diatomic is None and not ck.failed:
         modes = 3 * natoms - (5 if shape == "linear" else 6)
         want = modes - len(torsions)
@@ -644,6 +685,9 @@ def _build(ck: _Checker, doc: dict, digest: str) -> Species | None:
         diatomic=diatomic,
         torsions=torsions,
         fit=fit,
+        frequency_scale_uncertainty=u_scale,
+        frequency_uncertainties=u_freqs,
+        rotor_uncertainty=u_rotor,
         path=ck.file,
         sha256=digest,
     )
