@@ -168,7 +168,7 @@ class Species:
     charge: int = 0
     optical_isomers: int = 1
     rotational_constants: tuple[float, ...] = ()  # [m^-1]; B, or A ≥ B ≥ C
-    frequencies: tuple[float, ...] = ()  # [m^-1], scale factor applied
+    frequencies: tuple[float, ...] = ()  # [m^-1], scale applied; harmonic modes only (torsional ones removed)
     frequency_scale: float = 1.0
     electronic: tuple[tuple[int, float], ...] = ((1, 0.0),)  # (g, energy [m^-1])
     diatomic: Diatomic | None = None
@@ -630,15 +630,7 @@ def _build(ck: _Checker, doc: dict, digest: str) -> Species | None:
             if vib is not None:
                 freqs, scale, u_scale, u_freqs = vib
     if shape in ("linear", "nonlinear") and natoms and diatomic is None and not ck.failed:
-        modes = 3 * natoms - (5 if shape == "linear" else 6)
-        want = modes - len(torsions)
-        if len(freqs) + len(torsions) != modes:
-            extra = f" minus {len(torsions)} torsion(s)" if torsions else ""
-            ck.error(
-                "vibrations.frequencies",
-                f"{len(freqs)} given; a {shape} molecule of {natoms} atoms has "
-                f"3N−{5 if shape == 'linear' else 6} = {modes} modes{extra}, so {want} expected",
-            )
+        freqs = _check_modes(ck, freqs, scale, torsions, shape, natoms)
 
     electronic = ((1, 0.0),)
     if doc.get("electronic") is not None:
@@ -691,6 +683,43 @@ def _build(ck: _Checker, doc: dict, digest: str) -> Species | None:
         path=ck.file,
         sha256=digest,
     )
+
+
+def _check_modes(ck, freqs, scale, torsions, shape, natoms) -> tuple[float, ...]:
+    """Mode count 3N−5 / 3N−6, and the harmonic modes that torsions replace.
+
+    The frequency list may hold all 3N−5/3N−6 modes — then each torsion's
+    ``replaces`` must match one listed (unscaled) frequency within 0.5 cm-1 and
+    that mode is dropped from the harmonic set — or already leave the torsional
+    modes out (3N−6 minus the number of torsions), ``replaces`` then recording
+    which mode the torsion stands for.  Returns the harmonic wavenumbers [m^-1].
+    """
+    modes = 3 * natoms - (5 if shape == "linear" else 6)
+    if len(freqs) == modes - len(torsions):
+        return freqs
+    if len(freqs) != modes:
+        extra = (
+            f" ({modes} with the torsional modes listed, {modes - len(torsions)} without)" if torsions else ""
+        )
+        ck.error(
+            "vibrations.frequencies",
+            f"{len(freqs)} given; a {shape} molecule of {natoms} atoms has "
+            f"3N−{5 if shape == 'linear' else 6} = {modes} modes, so {modes} expected{extra}",
+        )
+        return freqs
+    left = list(freqs)
+    for i, tor in enumerate(torsions):
+        unscaled = [f / scale for f in left]
+        gaps = [abs(f - tor.replaces) for f in unscaled]
+        if not gaps or min(gaps) > 50.0:  # 0.5 cm-1 in m^-1
+            ck.error(
+                f"torsions[{i}].replaces",
+                f"{tor.replaces / 100:g} cm-1 matches none of the listed frequencies "
+                "(name the harmonic mode this torsion replaces, or leave torsional modes out of the list)",
+            )
+            continue
+        left.pop(gaps.index(min(gaps)))
+    return tuple(left)
 
 
 def load_species(path: str | Path, display: str | None = None) -> tuple[Species, list[Diagnostic]]:

@@ -24,13 +24,9 @@ __all__ = [
 
 
 def harmonic_frequencies(species) -> np.ndarray:
-    """The wavenumbers [m^-1] treated as harmonic: all but those torsions replace."""
-    freqs = list(species.frequencies)
-    for tor in species.torsions:
-        # the validator guarantees each `replaces` names one listed mode
-        i = int(np.argmin([abs(f - tor.replaces) for f in freqs]))
-        freqs.pop(i)
-    return np.asarray(freqs, dtype=float)
+    """The wavenumbers [m^-1] treated as harmonic (the loader has already
+    removed the modes that torsions replace)."""
+    return np.asarray(species.frequencies, dtype=float)
 
 
 def species_terms(species, T, pressure: float = C.bar) -> Terms:
