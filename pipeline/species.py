@@ -153,6 +153,21 @@ class Torsion:
 
 
 @dataclass(frozen=True)
+class ReferenceData:
+    """Published values to overlay on a species' plot (``reference:`` block).
+
+    ``T`` [K]; ``cp``, ``s`` [J/mol/K] and ``h_minus_h298`` [J/mol], each
+    None or one value per temperature; ``source`` names the publication.
+    """
+
+    source: str
+    T: tuple[float, ...]
+    cp: tuple[float, ...] | None = None
+    s: tuple[float, ...] | None = None
+    h_minus_h298: tuple[float, ...] | None = None
+
+
+@dataclass(frozen=True)
 class Species:
     """One gas-phase species, validated, in SI units (see module docstring)."""
 
@@ -178,6 +193,7 @@ class Species:
     frequency_scale_uncertainty: float | None = None  # of the scale factor [-]
     frequency_uncertainties: tuple[float, ...] | None = None  # per mode [m^-1], scale applied
     rotor_uncertainty: float | None = None  # relative, all rotational constants together [-]
+    reference: ReferenceData | None = None  # published values for the plot
     path: str = ""
     sha256: str = ""
 
@@ -203,7 +219,7 @@ class Species:
 _TOP_KEYS = {
     "name", "formula", "charge", "shape", "symmetry", "optical_isomers", "mass",
     "rotor", "vibrations", "electronic", "formation", "sources", "fit",
-    "diatomic", "torsions", "notes",
+    "diatomic", "torsions", "notes", "reference",
 }
 _REQUIRED = ("name", "formula", "shape", "symmetry", "formation", "sources")
 
@@ -481,6 +497,35 @@ def _read_formation(ck: _Checker, raw: Any) -> tuple[float, float, float | None]
     return h * factor, t, None if unc is None else unc * factor
 
 
+def _read_reference(ck: _Checker, raw: Any) -> ReferenceData | None:
+    """``reference: {source, T: [K], cp: [J/mol/K], s: [J/mol/K], h_minus_h298: [kJ/mol]}``."""
+    m = ck.mapping(raw, "reference")
+    if m is None:
+        return None
+    props = ("cp", "s", "h_minus_h298")
+    ck.keys(m, {"source", "T", *props}, "reference", required=("source", "T"))
+    source = m.get("source")
+    if "source" in m and not (isinstance(source, str) and source.strip()):
+        ck.error("reference.source", f"{_show(source)} is not a citation (text)")
+    T = ck.numbers(m["T"], "reference.T") if "T" in m else None
+    for i, t in enumerate(T or ()):
+        if t <= 0:
+            ck.error(f"reference.T[{i}]", f"{t!r} is not a temperature above 0 K")
+    if not any(k in m for k in props):
+        ck.error("reference", "give at least one of: cp, s, h_minus_h298")
+    values: dict[str, tuple[float, ...]] = {}
+    for key, factor in zip(props, (1.0, 1.0, 1e3)):
+        if key in m:
+            v = ck.numbers(m[key], f"reference.{key}")
+            if v is not None and T is not None and len(v) != len(T):
+                ck.error(f"reference.{key}", f"{len(v)} value(s) for {len(T)} temperature(s) in reference.T")
+            elif v is not None:
+                values[key] = tuple(x * factor for x in v)
+    if ck.failed or T is None:
+        return None
+    return ReferenceData(source=source.strip(), T=tuple(T), **values)
+
+
 def _read_fit(ck: _Checker, raw: Any) -> FitOptions | None:
     m = ck.mapping(raw, "fit")
     if m is None:
@@ -655,6 +700,8 @@ def _build(ck: _Checker, doc: dict, digest: str) -> Species | None:
     if doc.get("notes") is not None and not isinstance(doc["notes"], str):
         ck.error("notes", f"{_show(doc['notes'])} is not text")
 
+    reference = _read_reference(ck, doc["reference"]) if doc.get("reference") is not None else None
+
     if ck.failed:
         return None
     assert name and formula and shape and symmetry and formation and sources and mass
@@ -680,6 +727,7 @@ def _build(ck: _Checker, doc: dict, digest: str) -> Species | None:
         frequency_scale_uncertainty=u_scale,
         frequency_uncertainties=u_freqs,
         rotor_uncertainty=u_rotor,
+        reference=reference,
         path=ck.file,
         sha256=digest,
     )
