@@ -121,8 +121,12 @@ class Diatomic:
     """Spectroscopic constants of a diatomic, wavenumbers [m^-1].
 
     ``G(v) = ωe(v+½) − ωexe(v+½)² + ωeye(v+½)³``,
-    ``F_v(J) = B_v J(J+1) − D_e J²(J+1)²`` with ``B_v = Be − αe(v+½)``.
-    ``dissociation`` is D0 or De [m^-1] (None: estimated by the model).
+    ``F_v(J) = B_v J(J+1) − D_v J²(J+1)² + H_e J³(J+1)³`` with
+    ``B_v = Be − αe(v+½) + γe(v+½)²`` and ``D_v = D_e + βe(v+½)``.
+    ``dissociation`` is D0, measured from the lowest level [m^-1] (None:
+    estimated by the model).  ``nuclear_spin`` is I of each nucleus of a
+    homonuclear molecule (None: heteronuclear); ``state_symmetry`` the
+    exchange symmetry of its ground state (``g+``, ``g-``, ``u+``, ``u-``).
     """
 
     omega_e: float
@@ -132,7 +136,11 @@ class Diatomic:
     D_e: float = 0.0
     omega_e_y_e: float = 0.0
     gamma_e: float = 0.0
+    beta_e: float = 0.0
+    H_e: float = 0.0
     dissociation: float | None = None
+    nuclear_spin: float | None = None
+    state_symmetry: str = ""
 
 
 @dataclass(frozen=True)
@@ -347,7 +355,7 @@ def _read_formula(ck: _Checker, raw: Any) -> tuple[tuple[str, int], ...] | None:
     return tuple(out) if not ck.failed else None
 
 
-def _read_rotor(ck: _Checker, raw: Any, shape: str | None) -> tuple[float, ...] | None:
+def _read_rotor(ck: _Checker, raw: Any, shape: str | None, formula=None) -> tuple[float, ...] | None:
     m = ck.mapping(raw, "rotor")
     if m is None:
         return None
@@ -360,7 +368,7 @@ def _read_rotor(ck: _Checker, raw: Any, shape: str | None) -> tuple[float, ...] 
     if kind == "geometry":
         from pipeline.blocks import read_geometry
 
-        return read_geometry(ck, m, shape)
+        return read_geometry(ck, m, shape, formula)
     values = ck.numbers(m[kind], f"rotor.{kind}")
     if values is None:
         return None
@@ -638,7 +646,7 @@ def _build(ck: _Checker, doc: dict, digest: str) -> Species | None:
     if doc.get("diatomic") is not None:
         from pipeline.blocks import read_diatomic
 
-        diatomic = read_diatomic(ck, doc["diatomic"])
+        diatomic = read_diatomic(ck, doc["diatomic"], formula)
         if shape and shape != "linear":
             ck.error("diatomic", f"a 'diatomic' block needs shape 'linear', not {shape!r}")
         if natoms is not None and natoms != 2:
@@ -646,6 +654,11 @@ def _build(ck: _Checker, doc: dict, digest: str) -> Species | None:
         for key in ("rotor", "vibrations"):
             if key in doc:
                 ck.error(key, "give either a 'diatomic' block or rotor/vibrations, not both")
+        if diatomic is not None and symmetry is not None:
+            want_sigma = 1 if diatomic.nuclear_spin is None else 2
+            if symmetry != want_sigma:
+                kind = "homonuclear" if want_sigma == 2 else "heteronuclear"
+                ck.error("symmetry", f"{symmetry} but a {kind} diatomic has symmetry number {want_sigma}")
 
     rotor: tuple[float, ...] = ()
     u_rotor = None
@@ -653,7 +666,7 @@ def _build(ck: _Checker, doc: dict, digest: str) -> Species | None:
         if shape == "atom":
             ck.error("rotor", "an atom has no rotor; remove this block")
         else:
-            rotor = _read_rotor(ck, doc["rotor"], shape) or ()
+            rotor = _read_rotor(ck, doc["rotor"], shape, formula) or ()
             u_rotor = _read_rotor_uncertainty(ck, doc["rotor"])
     elif shape in ("linear", "nonlinear") and diatomic is None:
         ck.error("rotor", f"missing required key for a {shape} molecule (constants, moments or geometry)")
@@ -663,6 +676,8 @@ def _build(ck: _Checker, doc: dict, digest: str) -> Species | None:
         from pipeline.blocks import read_torsions
 
         torsions = read_torsions(ck, doc["torsions"])
+        if shape == "atom" or diatomic is not None or natoms == 2:
+            ck.error("torsions", "only a polyatomic molecule has internal rotors; remove this block")
 
     freqs: tuple[float, ...] = ()
     scale = 1.0

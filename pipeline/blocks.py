@@ -1,0 +1,207 @@
+"""Validation of the advanced species-file blocks: ``diatomic:``, ``torsions:``
+and ``rotor: geometry:``.
+
+Each reader takes the file's :class:`pipeline.species._Checker` (so every
+message names file, key path, the bad value and what is expected) and returns
+SI values (wavenumbers [m^-1], energies [J/mol], moments [kg m^2]) or ``None``
+when the block is unusable.  Nothing here computes thermochemistry.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from scipy import constants as C
+
+from pipeline import units
+from pipeline.geometry import ISOTOPE, LINEAR_TOLERANCE, is_linear, principal_moments, rotational_constant
+from pipeline.species import Diatomic, Torsion, _show
+
+#: keys of a ``diatomic:`` block → Diatomic field (all wavenumbers)
+_DIATOMIC_KEYS = ("omega_e", "omega_e_x_e", "omega_e_y_e", "B_e", "alpha_e", "gamma_e", "D_e", "beta_e", "H_e",
+                  "dissociation")
+_DIATOMIC_REQUIRED = ("omega_e", "omega_e_x_e", "B_e")
+#: exchange symmetry of a homonuclear ground state: g+ and u− are symmetric
+STATE_SYMMETRIES = ("g+", "g-", "u+", "u-")
+
+_TORSION_KEYS = {"replaces", "barrier", "barrier_unit", "periodicity", "symmetry", "moment", "moment_unit", "fourier",
+                 "barrier_uncertainty"}
+_BARRIER_UNITS = ("kJ/mol", "kcal/mol", "J/mol", "cm-1")
+
+
+def read_diatomic(ck, raw: Any, formula=None) -> Diatomic | None:
+    """``diatomic:`` → :class:`Diatomic` (wavenumbers in [m^-1]).
+
+    ``formula`` (element counts) decides whether the molecule is homonuclear;
+    a homonuclear molecule then needs ``state_symmetry`` (g+, g-, u+, u-) of
+    its ground electronic state for the nuclear-spin statistics.
+    """
+    m = ck.mapping(raw, "diatomic")
+    if m is None:
+        return None
+    ck.keys(m, set(_DIATOMIC_KEYS) | {"unit", "state_symmetry"}, "diatomic", required=_DIATOMIC_REQUIRED)
+    unit = ck.unit(m.get("unit"), "diatomic.unit", ("cm-1",), "cm-1")
+    vals: dict[str, float] = {}
+    for key in _DIATOMIC_KEYS:
+        if m.get(key) is None:
+            continue
+        positive = key in ("omega_e", "B_e", "dissociation")
+        nonneg = key in ("omega_e_x_e", "D_e")
+        x = ck.number(m[key], f"diatomic.{key}", positive=positive, nonnegative=nonneg)
+        if x is not None:
+            vals[key] = x
+    if unit is None or any(k not in vals for k in _DIATOMIC_REQUIRED):
+        return None
+    w, wx = vals["omega_e"], vals["omega_e_x_e"]
+    if wx >= 0.25 * w:
+        ck.error("diatomic.omega_e_x_e", f"{wx!r} is not small compared with omega_e = {w!r} (expected ωexe ≪ ωe)")
+    if abs(vals.get("alpha_e", 0.0)) >= vals["B_e"]:
+        ck.error("diatomic.alpha_e", f"{vals['alpha_e']!r} must be smaller than B_e = {vals['B_e']!r}")
+    if "dissociation" in vals and "omega_e" in vals and vals["dissociation"] <= 0.5 * w:
+        ck.error("diatomic.dissociation", f"{vals['dissociation']!r} cm-1 lies below the zero-point level ≈ ωe/2")
+
+    if "dissociation" not in vals and wx == 0:
+        ck.error("diatomic.dissociation", "missing; give D0 (the Morse estimate ωe²/4ωexe needs omega_e_x_e > 0)")
+    spin = None
+    sym = m.get("state_symmetry")
+    homonuclear = formula is not None and len(formula) == 1 and formula[0][1] == 2
+    if homonuclear:
+        el = formula[0][0]
+        if el not in ISOTOPE:
+            ck.error("formula", f"no nuclear spin is tabulated for {el!r} (needed for a homonuclear 'diatomic' block)")
+        else:
+            spin = ISOTOPE[el][1]
+        if sym is None:
+            ck.error(
+                "diatomic.state_symmetry",
+                "missing; a homonuclear molecule needs the exchange symmetry of its ground state "
+                f"(one of: {', '.join(STATE_SYMMETRIES)}; e.g. H2, N2 X¹Σg⁺ → g+, O2 X³Σg⁻ → g-)",
+            )
+    if sym is not None:
+        if sym not in STATE_SYMMETRIES:
+            ck.error("diatomic.state_symmetry", f"{_show(sym)} is not one of: {', '.join(STATE_SYMMETRIES)}")
+            sym = None
+        elif not homonuclear and formula is not None:
+            ck.error("diatomic.state_symmetry", "only a homonuclear molecule (two like atoms) has one; remove it")
+    if ck.failed:
+        return None
+    f = units.WAVENUMBER[unit]
+    return Diatomic(
+        **{k: v * f for k, v in vals.items()},
+        nuclear_spin=spin,
+        state_symmetry=sym or "",
+    )
+
+
+def read_torsions(ck, raw: Any) -> tuple[Torsion, ...]:
+    """``torsions:`` (a list of mappings) → tuple of :class:`Torsion` (SI units).
+
+    ``replaces`` is stored as given [m^-1, unscaled]; the loader's mode
+    check ties it to one listed frequency.
+    """
+    if not isinstance(raw, list) or not raw:
+        ck.error("torsions", f"{_show(raw)} is not a list of torsion mappings (- replaces: ..., barrier: ...)")
+        return ()
+    out = []
+    for i, item in enumerate(raw):
+        path = f"torsions[{i}]"
+        m = ck.mapping(item, path)
+        if m is None:
+            continue
+        ck.keys(m, _TORSION_KEYS, path, required=("replaces", "barrier", "periodicity", "symmetry", "moment"))
+        if any(k not in m for k in ("replaces", "barrier", "periodicity", "symmetry", "moment")):
+            continue
+        replaces = ck.number(m["replaces"], f"{path}.replaces", positive=True)
+        barrier = ck.number(m["barrier"], f"{path}.barrier", nonnegative=True)
+        bunit = ck.unit(m.get("barrier_unit"), f"{path}.barrier_unit", _BARRIER_UNITS, "kJ/mol")
+        n = ck.integer(m["periodicity"], f"{path}.periodicity", minimum=1)
+        sigma = ck.integer(m["symmetry"], f"{path}.symmetry", minimum=1)
+        moment = ck.number(m["moment"], f"{path}.moment", positive=True)
+        munit = ck.unit(m.get("moment_unit"), f"{path}.moment_unit", units.MOMENT, "amu*angstrom^2")
+        fourier: list[float] | None = []
+        if m.get("fourier") is not None:
+            fourier = ck.numbers(m["fourier"], f"{path}.fourier")
+        u_barrier = None
+        if m.get("barrier_uncertainty") is not None:
+            u_barrier = ck.number(m["barrier_uncertainty"], f"{path}.barrier_uncertainty", nonnegative=True)
+            if u_barrier is None:
+                continue
+        if None in (replaces, barrier, bunit, n, sigma, moment, munit) or fourier is None:
+            continue
+        if n is not None and sigma is not None and n % sigma != 0:
+            ck.error(
+                f"{path}.symmetry",
+                f"{sigma} does not divide the periodicity {n} (the internal symmetry number "
+                "counts equivalent minima of one turn)",
+            )
+            continue
+        e = units.MOLAR_ENERGY[bunit]
+        out.append(
+            Torsion(
+                replaces=replaces * units.WAVENUMBER["cm-1"],
+                barrier=barrier * e,
+                periodicity=n,
+                symmetry=sigma,
+                moment=moment * units.MOMENT[munit],
+                fourier=tuple(v * e for v in fourier),
+                barrier_uncertainty=None if u_barrier is None else u_barrier * e,
+            )
+        )
+    return tuple(out)
+
+
+def read_geometry(ck, mapping: dict, shape: str | None, formula=None) -> tuple[float, ...] | None:
+    """``rotor: geometry:`` → rotational constants [m^-1], sorted descending.
+
+    ``geometry`` is a list of ``[symbol, x, y, z]`` rows in Å (``unit:
+    angstrom``, the default, or ``bohr``); atoms take their most abundant
+    isotope's mass (:data:`pipeline.geometry.ISOTOPE`).  The atoms must match
+    ``formula`` and the linearity found must match ``shape``.  Returns one
+    constant for a linear molecule, three (A ≥ B ≥ C) otherwise.
+    """
+    unit = mapping.get("unit", "angstrom")
+    scale = {"angstrom": 1.0, "bohr": C.physical_constants["Bohr radius"][0] * 1e10}
+    if unit not in scale:
+        ck.error("rotor.unit", f"{_show(unit)} is not a length unit for a geometry (expected one of: angstrom, bohr)")
+        return None
+    rows = mapping["geometry"]
+    if not isinstance(rows, list) or len(rows) < 2:
+        ck.error("rotor.geometry", f"{_show(rows)} is not a list of at least two [symbol, x, y, z] rows")
+        return None
+    masses, coords, counts = [], [], {}
+    for i, row in enumerate(rows):
+        path = f"rotor.geometry[{i}]"
+        if not isinstance(row, list) or len(row) != 4 or not isinstance(row[0], str):
+            ck.error(path, f"{_show(row)} is not a [symbol, x, y, z] row")
+            continue
+        if row[0] not in ISOTOPE:
+            ck.error(f"{path}[0]", f"{row[0]!r} has no isotope mass in the table (known: {', '.join(ISOTOPE)})")
+            continue
+        xyz = [ck.number(v, f"{path}[{k + 1}]") for k, v in enumerate(row[1:])]
+        if None in xyz:
+            continue
+        masses.append(ISOTOPE[row[0]][0])
+        coords.append([v * scale[unit] for v in xyz])
+        el = "H" if row[0] == "D" else row[0]
+        counts[el] = counts.get(el, 0) + 1
+    if ck.failed:
+        return None
+    if formula is not None and counts != dict(formula):
+        have = ", ".join(f"{k}: {v}" for k, v in sorted(counts.items()))
+        ck.error("rotor.geometry", f"the atoms ({have}) do not match the formula {dict(formula)}")
+        return None
+    moments = principal_moments(masses, coords)
+    if moments[2] <= 0:
+        ck.error("rotor.geometry", "all atoms sit at one point (expected distinct coordinates)")
+        return None
+    linear = is_linear(moments)
+    found = "linear" if linear else "nonlinear"
+    if shape in ("linear", "nonlinear") and shape != found:
+        ck.error(
+            "shape",
+            f"{shape!r} but rotor.geometry is {found} (smallest/largest principal moment "
+            f"{moments[0] / moments[2]:.2e}; linear below {LINEAR_TOLERANCE:g})",
+        )
+        return None
+    used = moments[2:] if linear else moments
+    return tuple(float(b) for b in sorted(rotational_constant(used), reverse=True))
