@@ -24,8 +24,6 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from scipy import constants as C
-
 from pipeline.diagnostics import Diagnostic, InputError
 
 
@@ -45,6 +43,8 @@ class Settings:
 
     @property
     def pressure_pa(self) -> float:
+        from scipy import constants as C  # lazy: a no-op rebuild must not import scipy
+
         return {"bar": C.bar, "atm": C.atm}[self.pressure]
 
     def replace(self, **changes: Any) -> "Settings":

@@ -26,6 +26,7 @@ from typing import Any
 import yaml
 
 from pipeline import units
+from pipeline.cache import display_path as _display, species_files  # noqa: F401 (stdlib-only helpers)
 from pipeline.diagnostics import Diagnostic, InputError
 from pipeline.elements import ATOMIC_WEIGHT, formula_mass
 
@@ -796,15 +797,6 @@ def load_species(path: str | Path, display: str | None = None) -> tuple[Species,
     return parse_species(data, file)
 
 
-def species_files(directory: str | Path) -> list[Path]:
-    """The species files of a database folder (``*.yaml``/``*.yml``), sorted by name."""
-    d = Path(directory)
-    return sorted(
-        (p for p in d.iterdir() if p.suffix in (".yaml", ".yml") and p.is_file()),
-        key=lambda p: p.name,
-    )
-
-
 def load_database(directory: str | Path) -> tuple[list[Species], list[Diagnostic]]:
     """Load every species file of a folder.
 
@@ -844,11 +836,3 @@ def duplicate_names(species: list[Species]) -> list[Diagnostic]:
         else:
             first[key] = sp
     return out
-
-
-def _display(p: Path) -> str:
-    """A path as the user would type it: relative to the working folder when inside it."""
-    try:
-        return p.resolve().relative_to(Path.cwd().resolve()).as_posix()
-    except ValueError:
-        return p.as_posix()

@@ -1,0 +1,761 @@
+"""The database as a build: ``statherm build``, ``statherm check``, ``statherm show``.
+
+``build`` turns every species file of a database folder into the files of an
+output folder (``species/`` → ``output/`` by default):
+
+1. hash each species file (sha256) and look its result up in the cache
+   (``OUT/.statherm-cache/``, see :mod:`pipeline.cache`); the key covers the
+   file's bytes, the tool version, the settings (``statherm.yaml`` and the
+   flags) and a fingerprint of the pipeline's code, so anything that could
+   change a number invalidates it;
+2. compute what is missing — load, partition functions, fit (batched across
+   species, :func:`pipeline.fit.fit_tables`), render the species' fragments
+   (:func:`pipeline.writers.species_fragments`) — in ``--jobs`` processes;
+3. assemble the database (:func:`pipeline.writers.assemble`) and write only
+   the files whose bytes change, atomically and as one recoverable step.
+
+When nothing changed, a rebuild only hashes the inputs and compares them with
+the manifest of the last build: no numpy, no YAML, no computation.
+
+All or nothing: if any species fails, every error (of every bad file) is
+reported, the exit code is 1 and no output file changes; ``--keep-going``
+writes the database of the good species (and still exits 1).
+
+Settings precedence: flags > the species file's ``fit:`` > ``statherm.yaml`` >
+defaults (:mod:`pipeline.settings`).
+
+``--shard I/N`` computes only the I-th of N slices of the species (a stable
+split by file name) into the cache and writes no output; a final ``build``
+without ``--shard`` assembles the database from the cache.  This is how
+``make -j`` or a batch system spreads a large rebuild.
+
+Hook for extra per-species files (plots): when the settings have
+``plots: true``, the build calls ``pipeline.plots.species_files(species,
+table, fit, settings) -> dict[str, bytes]`` (output-relative path → bytes) for
+each computed species and caches the result with its fragments.  If that
+raises ImportError (matplotlib missing), the build says so once and goes on
+without plots.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import time
+from pathlib import Path
+
+from pipeline import __version__
+from pipeline.cache import (
+    CACHE_DIR, FORMAT, Cache, Lock, Progress, Unwritable, code_fingerprint, display_path, file_state,
+    sha256_bytes, sha256_json, species_files,
+)
+from pipeline.diagnostics import Diagnostic, InputError
+
+EXIT_OK, EXIT_DATA = 0, 1
+
+#: settings a flag may override: (flag, Settings field, argparse type, metavar, help)
+_SETTING_FLAGS = (
+    ("--tmin", "tmin", float, "K", "low end of the fit and tables [K]"),
+    ("--tmid", "tmid", None, "K|auto", "range break [K], or 'auto' to search it"),
+    ("--tmax", "tmax", float, "K", "high end of the fit and tables [K]"),
+    ("--grid-step", "grid_step", float, "K", "spacing of the grid the fit uses [K]"),
+    ("--table-step", "table_step", float, "K", "spacing of output/tables/*.csv [K]"),
+    ("--cp-warning", "cp_warning", float, "X", "relative max Cp error above which a fit is flagged"),
+)
+
+
+# --------------------------------------------------------------------------
+# Command line
+# --------------------------------------------------------------------------
+
+
+def _tmid(value: str):
+    if value == "auto":
+        return "auto"
+    try:
+        return float(value)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{value!r} is not a temperature [K] or 'auto'") from None
+
+
+def _shard(value: str) -> tuple[int, int]:
+    try:
+        i, n = (int(v) for v in value.split("/"))
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{value!r} is not I/N (e.g. 2/4)") from None
+    if not 1 <= i <= n:
+        raise argparse.ArgumentTypeError(f"{value!r}: I must be between 1 and N")
+    return i, n
+
+
+def _common(p: argparse.ArgumentParser, *, settings: bool = True) -> None:
+    p.add_argument("--species", default="species", metavar="DIR", help="database folder (default: species)")
+    p.add_argument("--out", default="output", metavar="DIR", help="output folder (default: output)")
+    g = p.add_mutually_exclusive_group()
+    g.add_argument("-q", "--quiet", action="store_true", help="print errors only")
+    g.add_argument("-v", "--verbose", action="store_true", help="say what is computed, cached and written")
+    p.add_argument("--json", action="store_true", default=argparse.SUPPRESS,
+                   help="print diagnostics as JSON on stderr")
+    if not settings:
+        return
+    s = p.add_argument_group("settings (override statherm.yaml and the species files' fit:)")
+    for flag, dest, typ, metavar, text in _SETTING_FLAGS:
+        s.add_argument(flag, dest=dest, type=typ or _tmid, metavar=metavar, help=text)
+    s.add_argument("--pressure", choices=("bar", "atm"), help="standard pressure (default: bar)")
+    s.add_argument("--plots", action=argparse.BooleanOptionalAction, default=None,
+                   help="write output/plots/ (needs the 'plot' extra)")
+
+
+def register(sub) -> None:
+    """Add ``build``, ``check`` and ``show`` to the ``statherm`` command line."""
+    p = sub.add_parser("build", help="species/ → output/ (incremental, all-or-nothing)",
+                       description=__doc__.split("\n\n")[0],
+                       epilog="Exit codes: 0 success, 1 input or data errors, 2 usage errors.")
+    _common(p)
+    p.add_argument("-j", "--jobs", type=int, metavar="N", help="worker processes (default: jobs setting, 1)")
+    p.add_argument("--shard", type=_shard, metavar="I/N", help="compute only slice I of N into the cache")
+    p.add_argument("-k", "--keep-going", action="store_true",
+                   help="write the good species even if some fail (exit code still 1)")
+    p.add_argument("--progress", action="store_true", help="show progress even when not on a terminal")
+    p.set_defaults(func=cmd_build)
+
+    c = sub.add_parser("check", help="exit 1 if output/ is stale (species, settings or code changed)",
+                       description="Exit 1, naming what is stale, if OUT is not what `statherm build` "
+                                   "would write from the species, the settings and the current code.",
+                       epilog="Exit codes: 0 up to date, 1 stale or input errors, 2 usage errors.")
+    _common(c)
+    c.set_defaults(func=cmd_check)
+
+    s = sub.add_parser("show", help="readable view of a fixed-column file (git textconv)",
+                       description="Print each species of a fixed-column seven-coefficient file as a "
+                                   "property table (for `git diff` through a textconv driver).")
+    s.add_argument("file", metavar="FILE", help="fixed-column file (e.g. output/thermo.dat)")
+    s.set_defaults(func=cmd_show)
+
+
+def _flags(args) -> dict:
+    """The settings given on the command line (those not given are absent)."""
+    out = {dest: getattr(args, dest) for _, dest, *_ in _SETTING_FLAGS if getattr(args, dest, None) is not None}
+    for dest in ("pressure", "plots"):
+        if getattr(args, dest, None) is not None:
+            out[dest] = getattr(args, dest)
+    return out
+
+
+def _verbosity(args) -> int:
+    return 0 if args.quiet else (2 if args.verbose else 1)
+
+
+def cmd_build(args) -> int:
+    if args.jobs is not None and args.jobs < 1:
+        raise InputError([Diagnostic("command line", "--jobs", f"{args.jobs} is not a positive integer")])
+    return build(args.species, args.out, flags=_flags(args), jobs=args.jobs, shard=args.shard,
+                 keep_going=args.keep_going, verbosity=_verbosity(args), as_json=args.json,
+                 progress=args.progress)
+
+
+def cmd_check(args) -> int:
+    return check(args.species, args.out, flags=_flags(args), verbosity=_verbosity(args), as_json=args.json)
+
+
+# --------------------------------------------------------------------------
+# Inputs and keys (standard library only: this is all a no-op rebuild runs)
+# --------------------------------------------------------------------------
+
+
+class Inputs:
+    """The species files, the settings file and the code, hashed."""
+
+    def __init__(self, species_dir: str | Path, flags: dict):
+        d = Path(species_dir)
+        if not d.is_dir():
+            what = "is not a folder" if d.exists() else "does not exist"
+            raise InputError([Diagnostic(d.as_posix(), "", f"{what} (give the species database folder with --species)")])
+        self.dir = d
+        self.flags = dict(sorted(flags.items()))
+        self.files = []  # (name in folder, display path, bytes, sha256)
+        for p in species_files(d):
+            disp = display_path(p)
+            try:
+                data = p.read_bytes()
+            except OSError as exc:
+                raise InputError([Diagnostic(disp, "", f"cannot be read ({exc.strerror})")]) from None
+            self.files.append((p.name, disp, data, sha256_bytes(data)))
+        from pipeline.settings import SETTINGS_FILE
+
+        sp = d / SETTINGS_FILE
+        self.settings_file = display_path(sp)
+        self.settings_sha = sha256_bytes(sp.read_bytes()) if sp.is_file() else None
+        self.code = code_fingerprint()
+        self.build_key = sha256_json(
+            [FORMAT, __version__, self.code, self.settings_sha, self.flags,
+             [(name, sha) for name, _, _, sha in self.files]]
+        )
+
+    def entry_key(self, name: str, sha: str, settings_key: dict) -> str:
+        """Cache key of one species file's result."""
+        return sha256_json([FORMAT, __version__, self.code, name, sha, settings_key, self.flags])
+
+
+def _outputs_unchanged(out: Path, manifest: dict) -> bool:
+    """True if every output file the manifest lists still has the bytes it recorded.
+
+    Files whose size and mtime are unchanged are trusted; others are re-hashed
+    (and their new stat recorded when the bytes are still the same).
+    """
+    for rel, (size, mtime, sha) in manifest.get("outputs", {}).items():
+        st = file_state(out / rel)
+        if st == [size, mtime]:
+            continue
+        if st is None or st[0] != size:
+            return False
+        try:
+            if sha256_bytes((out / rel).read_bytes()) != sha:
+                return False
+        except OSError:
+            return False
+        manifest["outputs"][rel][:2] = st
+        manifest["touched"] = True
+    return True
+
+
+# --------------------------------------------------------------------------
+# Computing species (runs in worker processes with --jobs)
+# --------------------------------------------------------------------------
+
+
+def _apply_flags(species, flags: dict):
+    """The species with the flags' tmin/tmid/tmax applied over its ``fit:`` block (flags win)."""
+    over = {k: flags[k] for k in ("tmin", "tmid", "tmax") if k in flags}
+    if not over:
+        return species
+    import dataclasses
+
+    return dataclasses.replace(species, fit=dataclasses.replace(species.fit, **over))
+
+
+def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list[dict], list[dict]]:
+    """Compute the cache entries of ``items`` = [(key, display path, bytes)].
+
+    Returns (entries, error diagnostics as dicts).  Entries are stored in the
+    cache (when ``cache_root`` is given) as they are made.
+    """
+    from pipeline.fit import fit_options, fit_tables
+    from pipeline.species import _Checker, check_ranges, parse_species
+    from pipeline.thermo import temperature_grid, thermo_table
+    from pipeline.writers import species_fragments
+
+    errors: list[Diagnostic] = []
+    loaded = []  # (key, disp, species, warnings, settings, table)
+    glob = settings.replace(**flags)
+    for key, disp, data in items:
+        try:
+            sp, warns = parse_species(data, disp)
+        except InputError as exc:
+            errors.extend(exc.diagnostics)
+            continue
+        sp = _apply_flags(sp, flags)
+        s = glob.for_species(sp)
+        ck = _Checker(disp)
+        check_ranges(ck, s.tmin, None if s.tmid == "auto" else s.tmid, s.tmax, "fit")
+        if ck.failed:
+            given = ", ".join(f"--{k} {v}" for k, v in flags.items() if k in ("tmin", "tmid", "tmax"))
+            errors.extend(Diagnostic(d.file, d.key, d.message + (f" (with {given})" if given else ""))
+                          for d in ck.diagnostics)
+            continue
+        table = thermo_table(sp, temperature_grid(s.tmin, s.tmax, s.grid_step), s.pressure_pa)
+        loaded.append((key, disp, sp, warns, s, table))
+
+    fits = []
+    if loaded:
+        opts = [fit_options(sp, s) for _, _, sp, _, s, _ in loaded]
+        tables = [t for *_, t in loaded]
+        try:
+            fits = fit_tables(tables, opts)
+        except ValueError:
+            fits = []
+            for table, o, (_, disp, *_) in zip(tables, opts, loaded):
+                try:
+                    fits.extend(fit_tables([table], [o]))
+                except ValueError as exc:
+                    errors.append(Diagnostic(disp, "fit", str(exc)))
+                    fits.append(None)
+
+    cache = Cache(Path(cache_root).parent) if cache_root else None
+    plots_off_said = False
+    entries = []
+    for (key, disp, sp, warns, s, table), fit in zip(loaded, fits):
+        if fit is None:
+            continue
+        fragments = species_fragments(sp, table, fit, s)
+        extra: dict[str, bytes] = {}
+        if s.plots:
+            try:
+                from pipeline.plots import species_files as plot_files
+
+                extra = plot_files(sp, table, fit, s)
+            except ImportError as exc:
+                if not plots_off_said:
+                    warns = list(warns) + [Diagnostic(disp, "plots", f"no plots written: {exc}", "warning")]
+                    plots_off_said = True
+        quality = getattr(fit, "quality", None)
+        fit_warns = [Diagnostic(disp, "fit", w, "warning") for w in getattr(quality, "warnings", ())]
+        entry = {
+            "key": key, "file": disp, "name": sp.name, "sha256": sp.sha256,
+            "warnings": [d.as_dict() for d in list(warns) + fit_warns],
+            "fragments": fragments,
+        }
+        if cache is not None:
+            try:
+                cache.store_entry(entry, extra)
+            except OSError:
+                pass  # a cache that cannot be written only costs time
+        entry["files"] = {rel: sha256_bytes(b) for rel, b in extra.items()}
+        entry["_extra"] = extra
+        entries.append(entry)
+    return entries, [d.as_dict() for d in errors]
+
+
+def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progress):
+    """Run :func:`_compute` over ``todo`` in ``jobs`` processes, in chunks (for the progress bar)."""
+    entries: list[dict] = []
+    errors: list[dict] = []
+    if not todo:
+        return entries, errors
+    n = len(todo)
+    jobs = max(1, min(jobs, n // 8 or 1))
+    size = max(25, -(-n // (jobs * 4)) if jobs > 1 else -(-n // 10))
+    chunks = [todo[i: i + size] for i in range(0, n, size)]
+    done = 0
+    if jobs == 1:
+        for chunk in chunks:
+            e, err = _compute(chunk, settings, flags, cache_root)
+            entries += e
+            errors += err
+            done += len(chunk)
+            progress.update(done)
+        return entries, errors
+    import multiprocessing
+
+    ctx = multiprocessing.get_context("fork" if sys.platform != "win32" else "spawn")
+    with ctx.Pool(jobs) as pool:
+        results = [pool.apply_async(_compute, (chunk, settings, flags, cache_root)) for chunk in chunks]
+        for chunk, r in zip(chunks, results):
+            e, err = r.get()
+            entries += e
+            errors += err
+            done += len(chunk)
+            progress.update(done)
+    return entries, errors
+
+
+# --------------------------------------------------------------------------
+# Planning: what the output folder should contain
+# --------------------------------------------------------------------------
+
+
+class Plan:
+    """Everything a build decides before touching the output folder."""
+
+    files: dict[str, bytes]  # output-relative path → bytes
+    errors: list[Diagnostic]
+    warnings: list[Diagnostic]
+    computed: int
+    cached: int
+    manifest: dict
+    entries: list[dict]
+
+
+def _in_shard(name: str, shard: tuple[int, int] | None) -> bool:
+    if shard is None:
+        return True
+    i, n = shard
+    return int(sha256_bytes(name.encode())[:8], 16) % n == i - 1
+
+
+def _plan(inputs: Inputs, out: Path, cache: Cache | None, *, jobs: int | None, shard=None,
+          keep_going: bool = False, verbosity: int = 1, progress: bool = False) -> Plan:
+    from pipeline.settings import load_settings
+
+    settings = load_settings(inputs.dir)
+    glob = settings.replace(**inputs.flags)
+    _check_flags(glob, inputs.flags)
+    skey = {**settings.model_key(), "plots": settings.plots}
+    plan = Plan()
+    plan.errors, plan.warnings = [], []
+    by_file: dict[str, dict] = {}
+    todo = []
+    keys = {}
+    for name, disp, data, sha in inputs.files:
+        key = inputs.entry_key(name, sha, skey)
+        keys[disp] = key
+        entry = cache.load_entry(key) if cache else None
+        if entry is not None:
+            by_file[disp] = entry
+        elif _in_shard(name, shard):
+            todo.append((key, disp, data))
+    plan.cached = len(by_file)
+    plan.computed = len(todo)
+    bar = Progress(len(todo), "statherm build", enabled=verbosity > 0, force=progress)
+    try:
+        entries, errors = _compute_all(todo, settings, inputs.flags,
+                                       cache.root.as_posix() if cache else None,
+                                       jobs or settings.jobs, bar)
+    finally:
+        bar.close()
+    plan.errors = [Diagnostic(**d) for d in errors]
+    for e in entries:
+        by_file[e["file"]] = e
+        if verbosity > 1:
+            print(f"computed {e['file']} ({e['name']})", file=sys.stderr)
+    for e in by_file.values():
+        plan.warnings.extend(Diagnostic(**d) for d in e["warnings"])
+    if shard is not None:
+        plan.files, plan.entries, plan.manifest = {}, [], {}
+        return plan
+
+    from types import SimpleNamespace
+
+    from pipeline.species import duplicate_names
+
+    dups = duplicate_names([SimpleNamespace(name=e["name"], path=f) for f, e in by_file.items()])
+    plan.errors.extend(dups)
+    bad = {d.file for d in plan.errors}
+    good = sorted((e for f, e in by_file.items() if f not in bad), key=lambda e: e["name"])
+    plan.entries = good
+    if plan.errors and not keep_going:
+        plan.files = {}
+        plan.manifest = {}
+        return plan
+
+    from pipeline.writers import assemble
+
+    files = dict(assemble([e["fragments"] for e in good], glob))
+    for e in good:
+        extra = e.get("_extra")
+        for rel, sha in e.get("files", {}).items():
+            files[rel] = extra[rel] if extra else cache.blob(sha)
+    plan.files = files
+    plan.manifest = {
+        "format": FORMAT,
+        "version": __version__,
+        "build_key": inputs.build_key,
+        "complete": not plan.errors,
+        "code": inputs.code,
+        "settings_file": inputs.settings_sha,
+        "settings": skey,
+        "flags": inputs.flags,
+        "inputs": {disp: sha for _, disp, _, sha in inputs.files},
+        "entries": {f: keys[f] for f in by_file if f not in bad},
+        "outputs": {rel: [0, 0, sha256_bytes(b)] for rel, b in files.items()},
+    }
+    return plan
+
+
+def _check_flags(glob, flags: dict) -> None:
+    """Flag values that are wrong on their own (ranges are checked per species)."""
+    bad = []
+    for _, dest, *_ in _SETTING_FLAGS:
+        v = flags.get(dest)
+        if v is not None and v != "auto" and not v > 0:
+            bad.append(Diagnostic("command line", f"--{dest.replace('_', '-')}", f"{v!r} must be positive"))
+    if bad:
+        raise InputError(bad)
+
+
+def _changes(out: Path, files: dict[str, bytes], manifest: dict | None) -> tuple[dict[str, bytes], list[str]]:
+    """(files whose bytes differ from what is on disk, stale files to delete)."""
+    old = (manifest or {}).get("outputs", {})
+    writes = {}
+    for rel, data in files.items():
+        path = out / rel
+        rec = old.get(rel)
+        st = file_state(path)
+        if st is None:
+            writes[rel] = data
+            continue
+        if rec is not None and st == rec[:2] and len(data) == rec[0]:
+            if sha256_bytes(data) != rec[2]:
+                writes[rel] = data
+            continue
+        try:
+            if path.read_bytes() != data:
+                writes[rel] = data
+        except OSError:
+            writes[rel] = data
+    deletes = {rel for rel in old if rel not in files and (out / rel).exists()}
+    deletes |= _leftovers(out, files)
+    return writes, sorted(deletes)
+
+
+def _leftovers(out: Path, files: dict[str, bytes]) -> set[str]:
+    """Files in the output's sub-folders (tables/, plots/) of a kind the build writes there
+    but no longer produces — e.g. the table of a removed species."""
+    kinds: dict[str, set[str]] = {}
+    for rel in files:
+        parent, _, leaf = rel.rpartition("/")
+        if parent:
+            kinds.setdefault(parent, set()).add(Path(leaf).suffix)
+    out_left = set()
+    for parent, suffixes in kinds.items():
+        folder = out / parent
+        try:
+            names = os.listdir(folder)
+        except OSError:
+            continue
+        for name in names:
+            rel = f"{parent}/{name}"
+            if rel not in files and Path(name).suffix in suffixes and (folder / name).is_file():
+                out_left.add(rel)
+    return out_left
+
+
+def _emit(diags: list[Diagnostic], verbosity: int, as_json: bool) -> None:
+    from pipeline.cli import report
+
+    shown = [d for d in diags if d.severity == "error" or verbosity > 0]
+    if shown or as_json:
+        report(shown, as_json)
+
+
+# --------------------------------------------------------------------------
+# build
+# --------------------------------------------------------------------------
+
+
+def _prepare(out_dir) -> Path:
+    out = Path(out_dir)
+    try:
+        from pipeline.cache import ensure_folder
+
+        ensure_folder(out)
+    except Unwritable as exc:
+        raise InputError([Diagnostic(out.as_posix(), "", str(exc).split(": ", 1)[1])]) from None
+    return out
+
+
+def build(species_dir="species", out_dir="output", *, flags: dict | None = None, jobs: int | None = None,
+          shard=None, keep_going: bool = False, verbosity: int = 1, as_json: bool = False,
+          progress: bool = False) -> int:
+    """``statherm build``: see the module docstring.  Returns the exit code."""
+    t0 = time.monotonic()
+    inputs = Inputs(species_dir, flags or {})
+    out = _prepare(out_dir)
+    cache = Cache(out)
+    if shard is not None:
+        plan = _plan(inputs, out, cache, jobs=jobs, shard=shard, verbosity=verbosity, progress=progress)
+        _emit(plan.errors + plan.warnings, verbosity, as_json)
+        if verbosity > 0 and not plan.errors:
+            i, n = shard
+            print(f"statherm: shard {i}/{n}: {plan.computed} species computed into the cache", file=sys.stderr)
+        return EXIT_DATA if plan.errors else EXIT_OK
+    try:
+        with Lock(out, quiet=verbosity == 0):
+            return _build_locked(inputs, out, cache, t0, jobs=jobs, keep_going=keep_going,
+                                 verbosity=verbosity, as_json=as_json, progress=progress)
+    except OSError as exc:
+        raise InputError([Diagnostic(out.as_posix(), "", f"cannot write ({exc.strerror}: {exc.filename})")]) from None
+
+
+def _build_locked(inputs, out, cache, t0, *, jobs, keep_going, verbosity, as_json, progress) -> int:
+    if cache.recover() and verbosity > 0:
+        print(f"statherm: completed an interrupted build of {out.as_posix()}", file=sys.stderr)
+    manifest = cache.load_manifest()
+    if (manifest and manifest.get("build_key") == inputs.build_key and manifest.get("complete")
+            and _outputs_unchanged(out, manifest)):
+        if manifest.pop("touched", False):
+            cache.store_manifest(manifest)
+        if verbosity > 1:
+            print(f"statherm: {out.as_posix()} is up to date ({len(inputs.files)} species)", file=sys.stderr)
+        return EXIT_OK
+    plan = _plan(inputs, out, cache, jobs=jobs, keep_going=keep_going, verbosity=verbosity, progress=progress)
+    if plan.errors and not keep_going:
+        _emit(plan.errors + plan.warnings, verbosity, as_json)
+        files = len({d.file for d in plan.errors})
+        print(f"statherm: {files} file(s) with errors; {out.as_posix()} left unchanged "
+              "(--keep-going writes the good species)", file=sys.stderr)
+        return EXIT_DATA
+    writes, deletes = _changes(out, plan.files, manifest)
+    cache.commit(writes, deletes, plan.manifest)
+    cache.prune(set(plan.manifest["entries"].values()),
+                {sha for e in plan.entries for sha in e.get("files", {}).values()})
+    _emit(plan.errors + plan.warnings, verbosity, as_json)
+    if verbosity > 0 and (writes or deletes or plan.computed or verbosity > 1):
+        dt = time.monotonic() - t0
+        print(f"statherm: {len(plan.entries)} species ({plan.computed} computed, {plan.cached} cached) → "
+              f"{out.as_posix()}: {len(writes)} file(s) written, {len(deletes)} removed, "
+              f"{len(plan.files) - len(writes)} unchanged ({dt:.2f} s)", file=sys.stderr)
+    if verbosity > 1:
+        for rel in sorted(writes):
+            print(f"  wrote {rel}", file=sys.stderr)
+        for rel in deletes:
+            print(f"  removed {rel}", file=sys.stderr)
+    return EXIT_DATA if plan.errors else EXIT_OK
+
+
+# --------------------------------------------------------------------------
+# check
+# --------------------------------------------------------------------------
+
+
+def check(species_dir="species", out_dir="output", *, flags: dict | None = None, verbosity: int = 1,
+          as_json: bool = False) -> int:
+    """``statherm check``: exit 1, naming what is stale, if ``out_dir`` is not what a build would write."""
+    inputs = Inputs(species_dir, flags or {})
+    out = Path(out_dir)
+    if not out.is_dir():
+        _emit([Diagnostic(out.as_posix(), "", "does not exist: run `statherm build`")], verbosity, as_json)
+        return EXIT_DATA
+    try:
+        _prepare(out)
+        cache: Cache | None = Cache(out)
+    except InputError:
+        cache = None  # read-only checkout: check without a cache
+    if cache is None:
+        return _check(inputs, out, None, verbosity, as_json)
+    with Lock(out, quiet=verbosity == 0):
+        cache.recover()
+        return _check(inputs, out, cache, verbosity, as_json)
+
+
+def _check(inputs: Inputs, out: Path, cache: Cache | None, verbosity: int, as_json: bool) -> int:
+    manifest = cache.load_manifest() if cache else None
+    if (manifest and manifest.get("build_key") == inputs.build_key and manifest.get("complete")
+            and _outputs_unchanged(out, manifest)):
+        if manifest.pop("touched", False):
+            cache.store_manifest(manifest)
+        if verbosity > 1:
+            print(f"statherm: {out.as_posix()} is up to date", file=sys.stderr)
+        return EXIT_OK
+    plan = _plan(inputs, out, cache, jobs=None, verbosity=0)
+    if plan.errors:
+        _emit(plan.errors, verbosity, as_json)
+        print(f"statherm: {len({d.file for d in plan.errors})} species file(s) with errors: "
+              f"{out.as_posix()} cannot be checked", file=sys.stderr)
+        return EXIT_DATA
+    writes, deletes = _changes(out, plan.files, manifest)
+    if not writes and not deletes:
+        if cache:
+            m = plan.manifest
+            for rel in m["outputs"]:
+                m["outputs"][rel][:2] = file_state(out / rel)
+            cache.store_manifest(m)
+        if verbosity > 1:
+            print(f"statherm: {out.as_posix()} is up to date", file=sys.stderr)
+        return EXIT_OK
+    diags = _stale_reasons(inputs, out, plan, manifest, writes, deletes)
+    _emit(diags, 1, as_json)
+    if verbosity > 0 and not as_json:
+        print(f"statherm: {out.as_posix()} is stale ({len(writes)} file(s) differ, {len(deletes)} left over): "
+              "run `statherm build` (or `make`)", file=sys.stderr)
+    return EXIT_DATA
+
+
+def _stale_reasons(inputs, out, plan, manifest, writes, deletes) -> list[Diagnostic]:
+    """Name why the output is stale: species files, settings, code — then the files."""
+    diags = []
+    now = {disp: sha for _, disp, _, sha in inputs.files}
+    recorded = (manifest or {}).get("inputs")
+    if recorded is None:
+        recorded = _recorded_inputs(out, plan)
+    explained = False
+    if recorded is not None:
+        for disp in sorted(now):
+            if disp not in recorded and now[disp] not in recorded.values():
+                diags.append(Diagnostic(disp, "", "new species file, not yet in the output"))
+            elif disp in recorded and recorded[disp] != now[disp]:
+                diags.append(Diagnostic(disp, "", "changed since the output was built"))
+        for disp in sorted(set(recorded) - set(now)):
+            if recorded[disp] not in now.values():
+                diags.append(Diagnostic(disp, "", "removed, but still in the output"))
+        explained = bool(diags)
+    if manifest:
+        if manifest.get("settings_file") != inputs.settings_sha or manifest.get("flags") != inputs.flags:
+            old = {**manifest.get("settings", {}), **manifest.get("flags", {})}
+            new = {**plan.manifest["settings"], **inputs.flags}
+            moved = [f"{k}: {old.get(k)!r} → {new.get(k)!r}" for k in sorted(set(old) | set(new))
+                     if old.get(k) != new.get(k)]
+            diags.append(Diagnostic(inputs.settings_file, "",
+                                    "settings changed since the output was built"
+                                    + (f" ({'; '.join(moved)})" if moved else "")))
+            explained = True
+        if manifest.get("code") != inputs.code or manifest.get("version") != __version__:
+            diags.append(Diagnostic("pipeline/", "", "code changed since the output was built"))
+            explained = True
+    if not explained:
+        diags.append(Diagnostic("pipeline/", "", "the species files are those the output was built from, "
+                                "so the settings or the code changed what a build writes"))
+    for rel in sorted(writes):
+        what = "missing" if not (out / rel).exists() else "differs from a fresh build"
+        diags.append(Diagnostic((out / rel).as_posix(), "", what))
+    for rel in deletes:
+        diags.append(Diagnostic((out / rel).as_posix(), "", "no longer produced by a build (left over)"))
+    return diags
+
+
+def _recorded_inputs(out: Path, plan: Plan) -> dict[str, str] | None:
+    """species file → sha256 as recorded in the output's own provenance (thermo.yaml), if any."""
+    path = out / "thermo.yaml"
+    if not path.is_file():
+        return None
+    try:
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError):
+        return None
+    known = {e["name"]: e for e in plan.entries}
+    import re
+
+    found = {}
+    for m in re.finditer(r"\b([0-9a-f]{64})\b", text):
+        found[m.group(1)] = True
+    recorded = {}
+    for name, e in known.items():
+        recorded[e["file"]] = e["sha256"] if e["sha256"] in found else "?"
+    return recorded
+
+
+# --------------------------------------------------------------------------
+# show
+# --------------------------------------------------------------------------
+
+#: temperatures [K] of the ``show`` tables (limited to each species' range)
+SHOW_T = (200.0, 298.15, 300.0, 400.0, 500.0, 600.0, 800.0, 1000.0, 1500.0, 2000.0, 2500.0,
+          3000.0, 3500.0, 4000.0, 5000.0, 6000.0)
+
+
+def cmd_show(args) -> int:
+    text = show(args.file)
+    sys.stdout.write(text)
+    return EXIT_OK
+
+
+def show(path: str) -> str:
+    """A readable view of a fixed-column file: per species, ranges and Cp, H, S, G at round T.
+
+    Meant as a git ``textconv`` driver, so that ``git diff`` of a database
+    shows how the properties moved.
+    """
+    from pipeline.readers import read_records
+
+    p = Path(path)
+    try:
+        fits = read_records(p)
+    except OSError as exc:
+        raise InputError([Diagnostic(path, "", f"cannot be read ({exc.strerror})")]) from None
+    lines = []
+    for f in fits:
+        formula = " ".join(f"{el}{n}" for el, n in f.formula)
+        charge = f" charge {f.charge:+d}" if f.charge else ""
+        lines.append(f"{f.name}  {formula}{charge}  phase {f.phase}  T {f.tlow:g}–{f.tmid:g}–{f.thigh:g} K")
+        lines.append(f"  {'T [K]':>8} {'Cp [J/mol/K]':>13} {'H [kJ/mol]':>12} {'S [J/mol/K]':>12} {'G [kJ/mol]':>12}")
+        T = [t for t in SHOW_T if f.tlow <= t <= f.thigh]
+        import numpy as np
+
+        T = np.asarray(sorted(set(T) | {f.tlow, f.tmid, f.thigh}), dtype=float)
+        cp, h, s, g = f.cp(T), f.h(T) / 1e3, f.s(T), f.g(T) / 1e3
+        for i, t in enumerate(T):
+            mark = " Tmid" if t == f.tmid else ""
+            lines.append(f"  {t:8.2f} {cp[i]:13.4f} {h[i]:12.4f} {s[i]:12.4f} {g[i]:12.4f}{mark}")
+        lines.append("")
+    return "\n".join(lines) + ("\n" if lines else "")

@@ -1,0 +1,389 @@
+"""Build state on disk: hashes, the code fingerprint, cache entries, atomic writes, lock, journal.
+
+Standard library only, so that a no-op rebuild (``statherm build`` with
+nothing to do) decides so without importing numpy, yaml or scipy.
+
+Layout of the cache folder ``OUT/.statherm-cache/`` (git-ignored, local to
+one machine; deleting it only costs a cold rebuild)::
+
+    lock             flock(2) target: one build (or check) per output folder at a time
+    manifest.json    what the last build read and wrote (inputs, settings, code, output stats)
+    entries/KEY.json one species' computed fragments, KEY = sha256 of everything they depend on
+    blobs/SHA        binary per-species files (e.g. plots), content-addressed
+    journal.json     present only while a build moves its files into place
+    tmp/             new file contents before they are moved into place
+
+Crash safety: new contents are written to ``tmp/`` first; then the journal
+(the list of moves and deletions, and the manifest to write) is committed with
+one ``os.replace``; then the moves run.  A build killed before the journal
+commit leaves the previous output untouched (its temporary files are swept up
+later); one killed after it is completed by the next ``build`` or ``check``
+(:func:`recover`), so every file is always either the complete old or the
+complete new version.
+"""
+
+from __future__ import annotations
+
+import errno
+import fcntl
+import hashlib
+import json
+import os
+import sys
+import time
+from pathlib import Path
+
+CACHE_DIR = ".statherm-cache"
+FORMAT = 1  # bump when the layout of entries or the manifest changes
+
+
+def sha256_bytes(data: bytes) -> str:
+    """Hex sha256 of ``data``.
+
+    >>> sha256_bytes(b"")[:12]
+    'e3b0c44298fc'
+    """
+    return hashlib.sha256(data).hexdigest()
+
+
+def sha256_json(value) -> str:
+    """Hex sha256 of a JSON-serialisable value (canonical: sorted keys, no spaces)."""
+    return sha256_bytes(json.dumps(value, sort_keys=True, separators=(",", ":")).encode())
+
+
+def species_files(directory: str | Path) -> list[Path]:
+    """The species files of a database folder (``*.yaml``/``*.yml``), sorted by name."""
+    d = Path(directory)
+    return sorted(
+        (p for p in d.iterdir() if p.suffix in (".yaml", ".yml") and p.is_file()),
+        key=lambda p: p.name,
+    )
+
+
+def display_path(p: Path) -> str:
+    """A path as the user would type it: relative to the working folder when inside it."""
+    try:
+        return p.resolve().relative_to(Path.cwd().resolve()).as_posix()
+    except ValueError:
+        return p.as_posix()
+
+
+_FINGERPRINT_SUFFIXES = (".py", ".j2", ".jinja", ".json", ".txt", ".md", ".yaml", ".tmpl")
+
+
+def code_fingerprint() -> str:
+    """sha256 over the pipeline package's sources, templates and schemas.
+
+    Any edit to the code that turns inputs into output changes it, so cached
+    results of older code are never reused.
+    """
+    root = Path(__file__).resolve().parent
+    h = hashlib.sha256()
+    for path in sorted(root.rglob("*")):
+        if "__pycache__" in path.parts or path.suffix not in _FINGERPRINT_SUFFIXES or not path.is_file():
+            continue
+        h.update(path.relative_to(root).as_posix().encode() + b"\0")
+        h.update(path.read_bytes() + b"\0")
+    return h.hexdigest()
+
+
+class Unwritable(Exception):
+    """The output folder cannot be created or written (message says which and why)."""
+
+
+def ensure_folder(out: Path) -> None:
+    """Create the output folder (not its parents) and its cache; check they are writable."""
+    if out.exists() and not out.is_dir():
+        raise Unwritable(f"{out.as_posix()}: is not a folder (give an output folder with --out)")
+    if not out.exists():
+        if not out.parent.is_dir():
+            raise Unwritable(
+                f"{out.as_posix()}: cannot be created: its parent folder {out.parent.as_posix()} does not exist"
+            )
+        try:
+            out.mkdir()
+        except OSError as exc:
+            raise Unwritable(f"{out.as_posix()}: cannot be created ({exc.strerror})") from None
+    cache = out / CACHE_DIR
+    try:
+        for sub in ("", "entries", "blobs", "tmp"):
+            (cache / sub).mkdir(exist_ok=True)
+        probe = cache / "tmp" / f"probe-{os.getpid()}"
+        probe.write_bytes(b"")
+        probe.unlink(missing_ok=True)
+    except OSError as exc:
+        raise Unwritable(
+            f"{out.as_posix()}: cannot write here ({exc.strerror}) — fix its permissions or choose "
+            "another folder with --out"
+        ) from None
+
+
+class Lock:
+    """Exclusive ``flock`` on ``OUT/.statherm-cache/lock``: serialises builds into one folder.
+
+    Waits (saying so once on stderr) while another process holds it; the
+    kernel releases it when that process ends, even by SIGKILL.
+    """
+
+    def __init__(self, out: Path, quiet: bool = False):
+        self.path = out / CACHE_DIR / "lock"
+        self.quiet = quiet
+        self.fd: int | None = None
+
+    def __enter__(self) -> "Lock":
+        self.fd = os.open(self.path, os.O_RDWR | os.O_CREAT, 0o644)
+        try:
+            fcntl.flock(self.fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError as exc:
+            if exc.errno not in (errno.EWOULDBLOCK, errno.EAGAIN, errno.EACCES):
+                raise
+            if not self.quiet:
+                print(f"statherm: waiting for another build in {self.path.parent.parent.as_posix()} to finish",
+                      file=sys.stderr)
+            fcntl.flock(self.fd, fcntl.LOCK_EX)
+        return self
+
+    def __exit__(self, *exc) -> None:
+        if self.fd is not None:
+            fcntl.flock(self.fd, fcntl.LOCK_UN)
+            os.close(self.fd)
+            self.fd = None
+
+
+def fault(point: str) -> None:
+    """Fault injection for the crash tests: SIGKILL this process at ``point``.
+
+    Active only when the environment variable ``STATHERM_FAULT`` equals
+    ``point``; a no-op otherwise.
+    """
+    if os.environ.get("STATHERM_FAULT") == point:
+        import signal
+
+        os.kill(os.getpid(), signal.SIGKILL)
+
+
+def write_atomic(path: Path, data: bytes) -> None:
+    """Write ``data`` to ``path`` through a temporary file in the same folder and ``os.replace``."""
+    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+    try:
+        with open(tmp, "wb") as fh:
+            fh.write(data)
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            tmp.unlink()
+        except OSError:
+            pass
+        raise
+
+
+def read_json(path: Path):
+    """A JSON file's value, or None if it is missing or unreadable (a damaged cache is ignored)."""
+    try:
+        with open(path, "rb") as fh:
+            return json.loads(fh.read())
+    except (OSError, ValueError):
+        return None
+
+
+def dump_json(value) -> bytes:
+    return json.dumps(value, sort_keys=True, separators=(",", ":"), ensure_ascii=False).encode()
+
+
+class Cache:
+    """The cache folder of one output folder (see module docstring)."""
+
+    def __init__(self, out: Path):
+        self.out = out
+        self.root = out / CACHE_DIR
+
+    # -- entries ------------------------------------------------------------
+
+    def entry_path(self, key: str) -> Path:
+        return self.root / "entries" / f"{key}.json"
+
+    def load_entry(self, key: str) -> dict | None:
+        entry = read_json(self.entry_path(key))
+        if not isinstance(entry, dict) or entry.get("key") != key:
+            return None
+        blobs = entry.get("files", {})
+        if any(not (self.root / "blobs" / sha).is_file() for sha in blobs.values()):
+            return None
+        return entry
+
+    def store_entry(self, entry: dict, files: dict[str, bytes] | None = None) -> None:
+        """Store one species' entry; binary ``files`` (output path → bytes) go to ``blobs/``."""
+        entry = dict(entry)
+        refs = {}
+        for rel, data in (files or {}).items():
+            sha = sha256_bytes(data)
+            blob = self.root / "blobs" / sha
+            if not blob.exists():
+                write_atomic(blob, data)
+            refs[rel] = sha
+        entry["files"] = refs
+        write_atomic(self.entry_path(entry["key"]), dump_json(entry))
+
+    def blob(self, sha: str) -> bytes:
+        return (self.root / "blobs" / sha).read_bytes()
+
+    def prune(self, keep_entries: set[str], keep_blobs: set[str]) -> None:
+        """Delete entries and blobs no current species refers to."""
+        for folder, keep, suffix in (("entries", keep_entries, ".json"), ("blobs", keep_blobs, "")):
+            try:
+                names = os.listdir(self.root / folder)
+            except OSError:
+                continue
+            for name in names:
+                stem = name[: -len(suffix)] if suffix and name.endswith(suffix) else name
+                if stem not in keep:
+                    try:
+                        os.unlink(self.root / folder / name)
+                    except OSError:
+                        pass
+
+    # -- manifest -----------------------------------------------------------
+
+    @property
+    def manifest_path(self) -> Path:
+        return self.root / "manifest.json"
+
+    def load_manifest(self) -> dict | None:
+        m = read_json(self.manifest_path)
+        return m if isinstance(m, dict) and m.get("format") == FORMAT else None
+
+    def store_manifest(self, manifest: dict) -> None:
+        write_atomic(self.manifest_path, dump_json(manifest))
+
+    # -- committing output --------------------------------------------------
+
+    @property
+    def journal_path(self) -> Path:
+        return self.root / "journal.json"
+
+    def commit(self, writes: dict[str, bytes], deletes: list[str], manifest: dict) -> None:
+        """Replace/delete output files as one recoverable step (see module docstring).
+
+        ``writes``: output-relative path → new bytes (only files whose bytes
+        change); ``deletes``: output-relative paths to remove; ``manifest``:
+        the manifest to store once the files are in place.  Output stats for
+        the written files are filled into ``manifest["outputs"]`` here.
+        """
+        tmpdir = self.root / "tmp"
+        moves = []
+        for i, (rel, data) in enumerate(sorted(writes.items())):
+            tmp = tmpdir / f"{os.getpid()}-{i}"
+            with open(tmp, "wb") as fh:
+                fh.write(data)
+            moves.append([tmp.name, rel])
+            if i == len(writes) // 2:
+                fault("writing-temporaries")
+        journal = {"format": FORMAT, "moves": moves, "deletes": sorted(deletes), "manifest": manifest}
+        fault("before-journal")
+        write_atomic(self.journal_path, dump_json(journal))
+        fault("after-journal")
+        self._apply(journal)
+
+    def _apply(self, journal: dict) -> None:
+        tmpdir = self.root / "tmp"
+        half = len(journal["moves"]) // 2
+        for i, (tmp, rel) in enumerate(journal["moves"]):
+            src = tmpdir / tmp
+            dest = self.out / rel
+            if src.exists():
+                dest.parent.mkdir(parents=True, exist_ok=True)
+                os.replace(src, dest)
+            if i == half:
+                fault("moving")
+        for rel in journal["deletes"]:
+            try:
+                os.unlink(self.out / rel)
+            except FileNotFoundError:
+                pass
+            parent = (self.out / rel).parent
+            while parent != self.out:
+                try:
+                    parent.rmdir()  # only if empty
+                except OSError:
+                    break
+                parent = parent.parent
+        manifest = journal["manifest"]
+        outputs = manifest.setdefault("outputs", {})
+        for rel in list(outputs):
+            st = _stat(self.out / rel)
+            if st is None:
+                del outputs[rel]
+            else:
+                outputs[rel][:2] = st
+        self.store_manifest(manifest)
+        fault("before-journal-removal")
+        os.unlink(self.journal_path)
+
+    def recover(self) -> bool:
+        """Finish a build that was killed after committing its journal; sweep temporaries.
+
+        Returns True if an interrupted build was completed.  Call with the lock held.
+        """
+        journal = read_json(self.journal_path)
+        done = False
+        if isinstance(journal, dict) and journal.get("format") == FORMAT:
+            self._apply(journal)
+            done = True
+        elif self.journal_path.exists():
+            self.journal_path.unlink()  # torn write cannot happen (os.replace), but be safe
+        try:
+            for name in os.listdir(self.root / "tmp"):
+                os.unlink(self.root / "tmp" / name)
+        except OSError:
+            pass
+        return done
+
+
+def _stat(path: Path) -> list[int] | None:
+    try:
+        st = os.stat(path)
+    except OSError:
+        return None
+    return [st.st_size, st.st_mtime_ns]
+
+
+def file_state(path: Path) -> list[int] | None:
+    """[size, mtime_ns] of a file, or None if it does not exist (what the manifest records)."""
+    return _stat(path)
+
+
+class Progress:
+    """A one-line progress bar on stderr, shown only on a terminal once a build runs > ``delay`` s.
+
+    ``force=True`` shows it in logs too (plain lines instead of a redrawn bar).
+    """
+
+    def __init__(self, total: int, label: str, *, enabled: bool, force: bool = False, delay: float = 1.0):
+        self.total = max(total, 1)
+        self.label = label
+        self.tty = sys.stderr.isatty()
+        self.enabled = enabled and (self.tty or force)
+        self.start = time.monotonic()
+        self.delay = 0.0 if force else delay
+        self.shown = False
+        self.last = -1
+
+    def update(self, done: int) -> None:
+        if not self.enabled or time.monotonic() - self.start < self.delay:
+            return
+        self.shown = True
+        if self.tty:
+            width = 30
+            fill = int(width * done / self.total)
+            sys.stderr.write(f"\r{self.label} [{'#' * fill}{' ' * (width - fill)}] {done}/{self.total}")
+            sys.stderr.flush()
+        else:
+            pct = int(100 * done / self.total) // 10 * 10
+            if pct != self.last:
+                self.last = pct
+                print(f"{self.label}: {done}/{self.total}", file=sys.stderr)
+
+    def close(self) -> None:
+        if self.shown and self.tty:
+            sys.stderr.write("\r" + " " * (len(self.label) + 50) + "\r")
+            sys.stderr.flush()
