@@ -1,0 +1,129 @@
+"""Fit pictures: byte-reproducible PNGs, ± band, reference overlay, the plot command."""
+
+from __future__ import annotations
+
+import dataclasses
+import io
+import struct
+import sys
+
+import numpy as np
+import pytest
+
+pytest.importorskip("matplotlib")
+
+from pipeline import plots  # noqa: E402
+from pipeline.cli import main  # noqa: E402
+from pipeline.settings import Settings  # noqa: E402
+from pipeline.species import ReferenceData, parse_species  # noqa: E402
+from refdata import SPECIES_DIR, reference, reference_cp, reference_s  # noqa: E402
+
+# colours of the page (matplotlib's tab10): band = tab:orange at alpha 0.35 on white,
+# reference points = tab:red
+BAND_RGB = (1.0, 1 - 0.35 * (1 - 0x7F / 255), 1 - 0.35 * (1 - 0x0E / 255))
+RED_RGB = (0xD6 / 255, 0x27 / 255, 0x28 / 255)
+
+
+def _chunks(png: bytes) -> list[bytes]:
+    assert png[:8] == b"\x89PNG\r\n\x1a\n"
+    out, i = [], 8
+    while i < len(png):
+        (n,) = struct.unpack(">I", png[i:i + 4])
+        out.append(png[i + 4:i + 8])
+        i += 12 + n
+    return out
+
+
+def _pixels(png: bytes, rgb, tol=0.02) -> int:
+    import matplotlib.image
+
+    img = matplotlib.image.imread(io.BytesIO(png), format="png")[..., :3]
+    return int(np.all(np.abs(img - np.asarray(rgb)) < tol, axis=-1).sum())
+
+
+def _uncertain(sp):
+    # scale-factor uncertainty 0.03: magnitude reported by Irikura, Johnson & Kacker,
+    # J. Phys. Chem. A 109, 8430 (2005) (from memory); 2 % on B: common practice
+    return dataclasses.replace(sp, frequency_scale_uncertainty=0.03, rotor_uncertainty=0.02)
+
+
+def test_page_is_byte_reproducible_and_has_no_metadata(database):
+    a = plots.species_page(database["HO2"], Settings())
+    b = plots.species_page(database["HO2"], Settings())
+    assert a == b
+    chunks = _chunks(a)
+    assert not {b"tEXt", b"iTXt", b"zTXt", b"tIME"} & set(chunks), chunks
+
+
+def test_band_drawn_only_with_uncertainties(database):
+    plain = dataclasses.replace(database["H2O"], formation_uncertainty=None)
+    assert _pixels(plots.species_page(plain, Settings()), BAND_RGB) == 0
+    assert _pixels(plots.species_page(_uncertain(plain), Settings()), BAND_RGB) > 500
+
+
+def test_reference_points_overlaid(database):
+    T = (300.0, 500.0, 1000.0, 1500.0, 2000.0, 3000.0)
+    _, source = reference("H2O")
+    ref = ReferenceData(f"GRI-Mech 3.0 thermo ({source}, as shipped with cantera)", T,
+                        tuple(reference_cp("H2O", T)), tuple(reference_s("H2O", T)))
+    without = plots.species_page(database["H2O"], Settings())
+    with_ref = plots.species_page(database["H2O"], Settings(), ref)
+    assert _pixels(without, RED_RGB, 0.05) == 0
+    assert _pixels(with_ref, RED_RGB, 0.05) > 50
+
+
+def test_reference_block_in_species_file(database):
+    text = (SPECIES_DIR / "OH.yaml").read_text()
+    text += ("reference:\n  source: \"GRI-Mech 3.0 thermo as shipped with cantera\"\n"
+             f"  T: [300, 1000]\n  cp: [{reference_cp('OH', 300)[0]:.4f}, {reference_cp('OH', 1000)[0]:.4f}]\n")
+    sp, _ = parse_species(text.encode(), "OH.yaml")
+    assert sp.reference.T == (300.0, 1000.0) and sp.reference.s is None
+    assert _pixels(plots.species_page(sp, Settings()), RED_RGB, 0.05) > 10
+
+
+def test_reference_block_errors():
+    from pipeline.diagnostics import InputError
+
+    text = (SPECIES_DIR / "OH.yaml").read_text() + "reference:\n  source: x\n  T: [300, 1000]\n  cp: [29.9]\n"
+    with pytest.raises(InputError) as exc:
+        parse_species(text.encode(), "OH.yaml")
+    d = exc.value.diagnostics[0]
+    assert d.key == "reference.cp" and "1 value(s) for 2" in d.message
+
+
+def test_comparison_page(database):
+    from pipeline.fit import fit_options, fit_table
+    from pipeline.thermo import temperature_grid, thermo_table
+
+    T = temperature_grid(200, 6000, 10)
+    old_sp = database["CO2"]
+    new_sp = dataclasses.replace(old_sp, frequencies=tuple(f * 1.02 for f in old_sp.frequencies))
+    fits = [fit_table(thermo_table(s, T), **fit_options(s, Settings())) for s in (old_sp, new_sp)]
+    a = plots.render_comparison("CO2", T, *fits)
+    assert a == plots.render_comparison("CO2", T, *fits)
+    assert a != plots.render_comparison("CO2", T, fits[0], fits[0])
+    assert plots.render_comparison("CO2", T, None, fits[1])[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_plot_command_writes_one_file(tmp_path, capsys):
+    out = tmp_path / "OH.png"
+    assert main(["plot", "OH", "--species", str(SPECIES_DIR), "-o", str(out)]) == 0
+    first = out.read_bytes()
+    assert main(["plot", "OH", "--species", str(SPECIES_DIR), "-o", str(out)]) == 0
+    assert out.read_bytes() == first
+    assert list(tmp_path.iterdir()) == [out]
+
+
+def test_plot_command_unknown_species(capsys):
+    assert main(["plot", "XYZ", "--species", str(SPECIES_DIR)]) == 1
+    assert "no species named 'XYZ'" in capsys.readouterr().err
+
+
+def test_without_matplotlib(monkeypatch, capsys, tmp_path):
+    monkeypatch.setitem(sys.modules, "matplotlib", None)  # import fails as if not installed
+    monkeypatch.setattr(plots, "available", lambda: False)
+    with pytest.raises(plots.PlotsUnavailable):
+        plots._mpl()
+    assert main(["plot", "OH", "--species", str(SPECIES_DIR), "-o", str(tmp_path / "x.png")]) == 1
+    assert "statherm[plot]" in capsys.readouterr().err
+    assert not (tmp_path / "x.png").exists()
