@@ -32,8 +32,8 @@ PNG_METADATA = {"Software": None}
 INSTALL_HINT = 'plots need matplotlib: pip install "statherm[plot]"'
 
 
-class PlotsUnavailable(RuntimeError):
-    """matplotlib is not installed."""
+class PlotsUnavailable(ImportError):
+    """matplotlib is not installed (an ImportError, so a build can carry on without plots)."""
 
 
 def available() -> bool:
@@ -246,6 +246,24 @@ def plot_file_name(name: str) -> str:
 # --------------------------------------------------------------------------
 # Command line: statherm plot NAME
 # --------------------------------------------------------------------------
+
+
+PLOTS_DIR = "plots"
+
+
+def species_files(species, table, fit, settings) -> dict[str, bytes]:
+    """The build's per-species plot files: ``{"plots/NAME.png": PNG bytes}``.
+
+    ``table`` is the species' table on the fit grid and ``fit`` the fitted
+    polynomials (drawn as the fixed-column record prints them).  Raises
+    :class:`PlotsUnavailable` (an ImportError) without matplotlib.
+    """
+    from pipeline.uncertainty import propagate
+
+    _mpl()
+    u = propagate(species, table.T, table.pressure)
+    page = render_plot(table, written_fit(fit), u, getattr(species, "reference", None))
+    return {f"{PLOTS_DIR}/{plot_file_name(species.name)}": page}
 
 
 def species_page(species, settings, reference=None) -> bytes:
