@@ -76,7 +76,7 @@ def cmd_table(args) -> int:
     return EXIT_OK
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(argv: list[str] | None = None) -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="statherm",
         description="Standard-state thermochemistry from molecular data: species/*.yaml → output/.",
@@ -95,15 +95,32 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--atm", action="store_true", help="standard pressure 1 atm instead of 1 bar")
     p.set_defaults(func=cmd_table)
 
-    for register in _extensions():
+    for register in _extensions(_command(sys.argv[1:] if argv is None else argv)):
         register(sub)
     return parser
 
 
-def _extensions():
+#: sub-command → the module that registers it; a command imports only its own module
+#: (all are imported for --help), so that e.g. a no-op ``build`` stays light
+_COMMAND_MODULES = {"build": "pipeline.build", "check": "pipeline.build", "show": "pipeline.build",
+                    "diff": "pipeline.diff", "bench": "pipeline.bench", "plot": "pipeline.plots",
+                    "table": None}
+_EXTENSION_MODULES = ("pipeline.build", "pipeline.diff", "pipeline.bench", "pipeline.plots")
+
+
+def _command(argv: list[str]) -> str | None:
+    """The sub-command named in ``argv`` (the first word that is not an option), if any."""
+    return next((a for a in argv if not a.startswith("-")), None)
+
+
+def _extensions(command: str | None = None):
     """Sub-command registrars of the other stages (build, check, diff, show, plot, bench)."""
     out = []
-    for module in ("pipeline.build", "pipeline.diff", "pipeline.bench", "pipeline.plots"):
+    if command in _COMMAND_MODULES:
+        modules = (_COMMAND_MODULES[command],) if _COMMAND_MODULES[command] else ()
+    else:
+        modules = _EXTENSION_MODULES
+    for module in modules:
         try:
             mod = __import__(module, fromlist=["register"])
         except ModuleNotFoundError as exc:
@@ -116,7 +133,7 @@ def _extensions():
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = build_parser()
+    parser = build_parser(argv)
     try:
         args = parser.parse_args(argv)
     except SystemExit as exc:  # argparse: 2 on usage errors, 0 on --help
