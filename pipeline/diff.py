@@ -51,6 +51,8 @@ def register(sub) -> None:
     p.add_argument("old", metavar="OLD", help="fixed-column file or output folder")
     p.add_argument("new", metavar="NEW", help="fixed-column file or output folder")
     p.add_argument("--fail-on-change", action="store_true", help="exit 1 if any species was added, removed or changed")
+    p.add_argument("--plots", metavar="DIR",
+                   help="also write DIR/NAME.png per changed species: old and new Cp and G overlaid (needs the 'plot' extra)")
     p.set_defaults(func=cmd_diff)
 
 
@@ -58,6 +60,16 @@ def cmd_diff(args) -> int:
     old, new = read_database(args.old), read_database(args.new)
     changes = compare(old, new)
     sys.stdout.write(markdown(changes, args.old, args.new, len(old), len(new)))
+    if getattr(args, "plots", None) and changes:
+        from pipeline.plots import PlotsUnavailable, write_comparisons
+
+        try:
+            paths = write_comparisons(changes, old, new, args.plots, "old", "new")
+        except PlotsUnavailable as exc:
+            raise InputError([Diagnostic("statherm diff", "--plots", str(exc))]) from None
+        except OSError as exc:
+            raise InputError([Diagnostic(args.plots, "", f"cannot be written ({exc.strerror})")]) from None
+        sys.stdout.write("\n" + "".join(f"![{c.name}: old vs new]({p})\n" for c, p in zip(changes, paths)))
     return EXIT_CHANGED if (changes and args.fail_on_change) else EXIT_OK
 
 

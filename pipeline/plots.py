@@ -243,6 +243,33 @@ def plot_file_name(name: str) -> str:
     return f"{name}.png"
 
 
+def write_comparisons(changes, old, new, directory, old_label: str = "old", new_label: str = "new") -> list[str]:
+    """Write one old-vs-new page per added, removed or changed species into ``directory``.
+
+    ``changes`` are :class:`pipeline.diff.Change` items; ``old`` and ``new``
+    the two lists of Nasa7Fit.  Returns the written paths (as given, POSIX
+    form) in the order of ``changes``.  Raises :class:`PlotsUnavailable`
+    without matplotlib.
+    """
+    from pipeline.cache import write_atomic
+
+    _mpl()
+    a = {f.name: f for f in old}
+    b = {f.name: f for f in new}
+    folder = Path(directory)
+    folder.mkdir(parents=True, exist_ok=True)
+    written = []
+    for c in changes:
+        fo, fn = a.get(c.name), b.get(c.name)
+        fits = [f for f in (fo, fn) if f is not None]
+        lo, hi = min(f.tlow for f in fits), max(f.thigh for f in fits)
+        T = np.union1d(np.arange(lo, hi + 1e-9, 10.0), [hi, *(f.tmid for f in fits)])
+        path = folder / plot_file_name(c.name)
+        write_atomic(path, render_comparison(c.name, T, fo, fn, old_label, new_label))
+        written.append(path.as_posix())
+    return written
+
+
 # --------------------------------------------------------------------------
 # Command line: statherm plot NAME
 # --------------------------------------------------------------------------
@@ -322,9 +349,9 @@ def _reference_from_file(path: str, name: str):
     import dataclasses
 
     from pipeline.diagnostics import Diagnostic, InputError
-    from pipeline.readers import read_fixed_column
+    from pipeline.readers import read_records
 
-    fits = read_fixed_column(path)
+    fits = read_records(path)
     for fit in fits:
         if fit.name.upper() == name.upper():
             return dataclasses.replace(fit, extra={**fit.extra, "source": Path(path).name})
