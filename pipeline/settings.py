@@ -13,6 +13,7 @@ below.
     grid_step: 10          # K, spacing of the grid the fit uses
     table_step: 100        # K, spacing of output/tables/*.csv (298.15 K added)
     cp_warning: 0.005      # relative max Cp error above which a fit is flagged
+    g_uncertainty_warning: 4.184  # kJ/mol; REPORT.md lists species whose u(G°, 1000 K) exceeds it
     plots: false           # write output/plots/ (needs the 'plot' extra)
     jobs: 1                # worker processes for builds
 """
@@ -38,6 +39,7 @@ class Settings:
     grid_step: float = 10.0
     table_step: float = 100.0
     cp_warning: float = 0.005
+    g_uncertainty_warning: float = 4.184  # [kJ/mol] 1 kcal/mol, "chemical accuracy" (common practice)
     plots: bool = False
     jobs: int = 1
 
@@ -60,6 +62,7 @@ class Settings:
         d = dataclasses.asdict(self)
         d.pop("jobs")
         d.pop("plots")
+        d.pop("g_uncertainty_warning")  # only selects what REPORT.md lists
         return d
 
 
@@ -93,7 +96,7 @@ def load_settings(database: str | Path, base: Settings | None = None) -> Setting
             ck.error("pressure", f"{m['pressure']!r} is not 'bar' or 'atm'")
         else:
             values["pressure"] = m["pressure"]
-    for key in ("tmin", "tmax", "grid_step", "table_step", "cp_warning"):
+    for key in ("tmin", "tmax", "grid_step", "table_step", "cp_warning", "g_uncertainty_warning"):
         if key in m:
             values[key] = ck.number(m[key], key, positive=True)
     if "tmid" in m:
