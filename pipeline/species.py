@@ -585,6 +585,10 @@ def parse_species(data: bytes, file: str) -> tuple[Species, list[Diagnostic]]:
         mark = getattr(exc, "problem_mark", None)
         where = f"line {mark.line + 1}, column {mark.column + 1}" if mark else ""
         problem = getattr(exc, "problem", None) or str(exc).splitlines()[0]
+        if "constructor for the tag" in problem:  # e.g. !!python/object: refused, nothing constructed or run
+            tag = problem.rsplit(" ", 1)[-1]
+            raise InputError([Diagnostic(file, where, f"YAML tag {tag} is not allowed (plain YAML only; "
+                                                      "nothing in the file was executed)")]) from None
         raise InputError([Diagnostic(file, where, f"YAML syntax error: {problem}")]) from None
     except RecursionError:
         raise InputError([Diagnostic(file, "", "YAML nesting is too deep")]) from None
@@ -609,7 +613,9 @@ def _build(ck: _Checker, doc: dict, digest: str) -> Species | None:
             ck.error("name", f"{_show(name)} is not a string (quote names YAML reads otherwise, e.g. \"NO\")")
             name = None
         elif not NAME_PATTERN.match(name):
-            ck.error("name", f"{name!r} is not a valid record name ({NAME_RULE})")
+            why = ("contains a path separator; " if "/" in name or "\\" in name else
+                   f"is {len(name)} characters, the record's name field holds 16; " if len(name) > 16 else "")
+            ck.error("name", f"{name!r} is not a valid record name: {why}{NAME_RULE}")
             name = None
 
     formula = _read_formula(ck, doc["formula"]) if "formula" in doc else None
