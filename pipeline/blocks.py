@@ -9,6 +9,7 @@ when the block is unusable.  Nothing here computes thermochemistry.
 
 from __future__ import annotations
 
+import dataclasses
 from typing import Any
 
 from scipy import constants as C
@@ -34,58 +35,86 @@ def read_diatomic(ck, raw: Any, formula=None) -> Diatomic | None:
 
     ``formula`` (element counts) decides whether the molecule is homonuclear;
     a homonuclear molecule then needs ``state_symmetry`` (g+, g-, u+, u-) of
-    its ground electronic state for the nuclear-spin statistics.
+    its ground electronic state for the nuclear-spin statistics.  An optional
+    ``excited:`` list gives excited electronic states with their own
+    constants, each with ``energy`` (Te, same unit) and ``degeneracy``.
     """
     m = ck.mapping(raw, "diatomic")
     if m is None:
         return None
-    ck.keys(m, set(_DIATOMIC_KEYS) | {"unit", "state_symmetry"}, "diatomic", required=_DIATOMIC_REQUIRED)
     unit = ck.unit(m.get("unit"), "diatomic.unit", ("cm-1",), "cm-1")
-    vals: dict[str, float] = {}
-    for key in _DIATOMIC_KEYS:
-        if m.get(key) is None:
-            continue
-        positive = key in ("omega_e", "B_e", "dissociation")
-        nonneg = key in ("omega_e_x_e", "D_e")
-        x = ck.number(m[key], f"diatomic.{key}", positive=positive, nonnegative=nonneg)
-        if x is not None:
-            vals[key] = x
-    if unit is None or any(k not in vals for k in _DIATOMIC_REQUIRED):
+    if unit is None:
         return None
-    w, wx = vals["omega_e"], vals["omega_e_x_e"]
-    if wx >= 0.25 * w:
-        ck.error("diatomic.omega_e_x_e", f"{wx!r} is not small compared with omega_e = {w!r} (expected ωexe ≪ ωe)")
-    if abs(vals.get("alpha_e", 0.0)) >= vals["B_e"]:
-        ck.error("diatomic.alpha_e", f"{vals['alpha_e']!r} must be smaller than B_e = {vals['B_e']!r}")
-    if "dissociation" in vals and "omega_e" in vals and vals["dissociation"] <= 0.5 * w:
-        ck.error("diatomic.dissociation", f"{vals['dissociation']!r} cm-1 lies below the zero-point level ≈ ωe/2")
-
-    if "dissociation" not in vals and wx == 0:
-        ck.error("diatomic.dissociation", "missing; give D0 (the Morse estimate ωe²/4ωexe needs omega_e_x_e > 0)")
-    spin = None
-    sym = m.get("state_symmetry")
     homonuclear = formula is not None and len(formula) == 1 and formula[0][1] == 2
+    spin = None
     if homonuclear:
         el = formula[0][0]
         if el not in ISOTOPE:
             ck.error("formula", f"no nuclear spin is tabulated for {el!r} (needed for a homonuclear 'diatomic' block)")
         else:
             spin = ISOTOPE[el][1]
-        if sym is None:
-            ck.error(
-                "diatomic.state_symmetry",
-                "missing; a homonuclear molecule needs the exchange symmetry of its ground state "
-                f"(one of: {', '.join(STATE_SYMMETRIES)}; e.g. H2, N2 X¹Σg⁺ → g+, O2 X³Σg⁻ → g-)",
-            )
+    ground = _read_state(ck, m, "diatomic", units.WAVENUMBER[unit], homonuclear, formula, spin, excited=False)
+    states = []
+    raw_ex = m.get("excited")
+    if raw_ex is not None:
+        if not isinstance(raw_ex, list):
+            ck.error("diatomic.excited", f"{_show(raw_ex)} is not a list of excited-state mappings")
+        else:
+            for i, item in enumerate(raw_ex):
+                path = f"diatomic.excited[{i}]"
+                sm = ck.mapping(item, path)
+                if sm is None:
+                    continue
+                st = _read_state(ck, sm, path, units.WAVENUMBER[unit], homonuclear, formula, spin, excited=True)
+                te = ck.number(sm.get("energy"), f"{path}.energy", positive=True) if "energy" in sm else None
+                g = ck.integer(sm.get("degeneracy"), f"{path}.degeneracy", minimum=1) if "degeneracy" in sm else None
+                if st is not None and te is not None and g is not None:
+                    states.append((te * units.WAVENUMBER[unit], g, st))
+    if ck.failed or ground is None:
+        return None
+    return dataclasses.replace(ground, excited=tuple(states))
+
+
+def _read_state(ck, m: dict, path: str, f: float, homonuclear: bool, formula, spin, excited: bool):
+    """The spectroscopic constants of one electronic state (wavenumbers × ``f``)."""
+    allowed = set(_DIATOMIC_KEYS) | {"state_symmetry"}
+    allowed |= {"energy", "degeneracy"} if excited else {"unit", "excited"}
+    required = _DIATOMIC_REQUIRED + (("energy", "degeneracy") if excited else ())
+    ck.keys(m, allowed, path, required=required)
+    vals: dict[str, float] = {}
+    for key in _DIATOMIC_KEYS:
+        if m.get(key) is None:
+            continue
+        positive = key in ("omega_e", "B_e", "dissociation")
+        nonneg = key in ("omega_e_x_e", "D_e")
+        x = ck.number(m[key], f"{path}.{key}", positive=positive, nonnegative=nonneg)
+        if x is not None:
+            vals[key] = x
+    if any(k not in vals for k in _DIATOMIC_REQUIRED):
+        return None
+    w, wx = vals["omega_e"], vals["omega_e_x_e"]
+    if wx >= 0.25 * w:
+        ck.error(f"{path}.omega_e_x_e", f"{wx!r} is not small compared with omega_e = {w!r} (expected ωexe ≪ ωe)")
+    if abs(vals.get("alpha_e", 0.0)) >= vals["B_e"]:
+        ck.error(f"{path}.alpha_e", f"{vals['alpha_e']!r} must be smaller than B_e = {vals['B_e']!r}")
+    if "dissociation" in vals and vals["dissociation"] <= 0.5 * w:
+        ck.error(f"{path}.dissociation", f"{vals['dissociation']!r} lies below the zero-point level ≈ ωe/2")
+    if "dissociation" not in vals and wx == 0:
+        ck.error(f"{path}.dissociation", "missing; give D0 (the Morse estimate ωe²/4ωexe needs omega_e_x_e > 0)")
+    sym = m.get("state_symmetry")
+    which = "this state" if excited else "its ground state"
+    if homonuclear and sym is None:
+        ck.error(
+            f"{path}.state_symmetry",
+            f"missing; a homonuclear molecule needs the exchange symmetry of {which} "
+            f"(one of: {', '.join(STATE_SYMMETRIES)}; e.g. H2, N2 X¹Σg⁺ → g+, O2 X³Σg⁻ → g-)",
+        )
     if sym is not None:
         if sym not in STATE_SYMMETRIES:
-            ck.error("diatomic.state_symmetry", f"{_show(sym)} is not one of: {', '.join(STATE_SYMMETRIES)}")
+            ck.error(f"{path}.state_symmetry", f"{_show(sym)} is not one of: {', '.join(STATE_SYMMETRIES)}")
             sym = None
         elif not homonuclear and formula is not None:
-            ck.error("diatomic.state_symmetry", "only a homonuclear molecule (two like atoms) has one; remove it")
-    if ck.failed:
-        return None
-    f = units.WAVENUMBER[unit]
+            ck.error(f"{path}.state_symmetry", "only a homonuclear molecule (two like atoms) has one; remove it")
     return Diatomic(
         **{k: v * f for k, v in vals.items()},
         nuclear_spin=spin,

@@ -128,6 +128,7 @@ class Diatomic:
     estimated by the model).  ``nuclear_spin`` is I of each nucleus of a
     homonuclear molecule (None: heteronuclear); ``state_symmetry`` the
     exchange symmetry of its ground state (``g+``, ``g-``, ``u+``, ``u-``).
+    ``excited`` lists excited electronic states with their own constants.
     """
 
     omega_e: float
@@ -142,6 +143,7 @@ class Diatomic:
     dissociation: float | None = None
     nuclear_spin: float | None = None
     state_symmetry: str = ""
+    excited: tuple = ()  # ((Te [m^-1], degeneracy, Diatomic), ...) excited states
 
 
 @dataclass(frozen=True)

@@ -98,18 +98,25 @@ def _vib(d, v):
     return d.omega_e * x - d.omega_e_x_e * x**2 + d.omega_e_y_e * x**3
 
 
-def diatomic_levels(d, T_max: float):
+def diatomic_levels(d, T_max: float, ground_degeneracy: int = 1):
     """Rovibrational levels E(v,J) [m^-1] above the lowest one, and weights.
 
     Cutoff rule (bound levels only): v runs while G(v) still rises
     (ΔG(v+½) > 0) and G(v) − G(0) ≤ D0; J runs while F_v(J) still rises
     (dF/d[J(J+1)] = B_v − 2 D_v J(J+1) + 3 H_e J²(J+1)² > 0, before the
-    centrifugal terms turn the truncated series over) and E(v,J) − E(0,0) ≤ D0, the dissociation energy of the non-rotating
-    molecule.  Quasi-bound levels above that asymptote (held only by the
+    centrifugal terms turn the truncated series over) and E(v,J) − E(0,0) ≤ D0,
+    the dissociation energy of the non-rotating molecule.  Quasi-bound levels above that asymptote (held only by the
     centrifugal barrier) are left out.  Levels above DEPTH·kT_max, which
     weigh nothing, are dropped too.  Degeneracy: (2J+1) times the
     nuclear-spin weight of J (:func:`spin_weights`); zero-weight levels are
     removed, so the lowest level returned is the true ground level.
+
+    Excited electronic states listed in ``d.excited`` (term energy Te, degeneracy
+    g_s, own constants) add their own manifolds, offset by Te + G_s(0) − G_X(0)
+    and weighted g_s / g_X, with g_X = ``ground_degeneracy`` (the ground
+    level's degeneracy in the species' ``electronic:`` block, which multiplies
+    every state; exact when that block holds the ground level only).  Each
+    state is cut at its own D0.
 
     Parameters
     ----------
@@ -117,6 +124,8 @@ def diatomic_levels(d, T_max: float):
         Constants [m^-1].
     T_max : float
         Highest temperature the levels will serve [K].
+    ground_degeneracy : int
+        g_X, the electronic degeneracy of the ground level.
 
     Returns
     -------
@@ -132,24 +141,39 @@ def diatomic_levels(d, T_max: float):
     Reference: G. Herzberg, *Spectra of Diatomic Molecules*, 2nd ed. (1950),
     eqs. III,94 and IV,10; J. L. Dunham, Phys. Rev. 41, 721 (1932).
     """
+    ceiling = DEPTH * T_max / theta(1.0)  # [m^-1]
+    parts = [_state_levels(d, 0.0, 1.0, ceiling)]
+    g0 = float(_vib(d, np.array([0.0]))[0])
+    for energy, degeneracy, ds in d.excited:
+        # term energy Te of the state plus its own zero-point level, from X(v=0)
+        offset = energy + float(_vib(ds, np.array([0.0]))[0]) - g0
+        if offset <= ceiling:
+            parts.append(_state_levels(ds, offset, degeneracy / ground_degeneracy, ceiling))
+    e = np.concatenate([p[0] for p in parts])
+    g = np.concatenate([p[1] for p in parts])
+    return e - e.min(), g
+
+
+def _state_levels(d, offset: float, weight: float, ceiling: float):
+    """Bound levels of one electronic state, ``offset`` [m^-1] above X(v=0, J=0)."""
     D0 = dissociation_limit(d)
     even_w, odd_w = spin_weights(d.nuclear_spin, d.state_symmetry)
-    ceiling = min(D0, DEPTH * T_max / theta(1.0))  # [m^-1]
+    cap = min(D0, ceiling - offset)  # [m^-1] above this state's (v=0, J=0)
     G0 = float(_vib(d, np.array([0.0]))[0])
     energies, weights = [], []
     v = 0
     while True:
         Gv = float(_vib(d, np.array([float(v)]))[0]) - G0
-        if Gv > ceiling:
+        if Gv > cap:
             break
         x = v + 0.5
         Bv = d.B_e - d.alpha_e * x + d.gamma_e * x * x
         if Bv <= 0:
             break
         Dv = d.D_e + d.beta_e * x
-        # J(J+1) ≤ (ceiling − Gv)/Bv bounds J while F stays below B_v J(J+1);
-        # with H_e > 0, F may exceed it: extend the range, the E ≤ ceiling test trims it
-        jmax = int(0.5 * (-1 + math.sqrt(1 + 4 * (ceiling - Gv) / Bv))) + 2
+        # J(J+1) ≤ (cap − Gv)/Bv bounds J while F stays below B_v J(J+1);
+        # with H_e > 0, F may exceed it: extend the range, the E ≤ cap test trims it
+        jmax = int(0.5 * (-1 + math.sqrt(1 + 4 * (cap - Gv) / Bv))) + 2
         if d.H_e > 0 and Dv > 0:
             jmax = int(jmax * 1.5) + 2
         J = np.arange(jmax + 1, dtype=float)
@@ -157,18 +181,16 @@ def diatomic_levels(d, T_max: float):
         F = Bv * jj - Dv * jj**2 + d.H_e * jj**3
         E = Gv + F
         rising = Bv - 2 * Dv * jj + 3 * d.H_e * jj**2 > 0
-        keep = np.logical_and.accumulate(rising) & (E <= ceiling)
-        w = np.where(J % 2 == 0, even_w, odd_w) * (2 * J + 1)
+        keep = np.logical_and.accumulate(rising) & (E <= cap)
+        w = np.where(J % 2 == 0, even_w, odd_w) * (2 * J + 1) * weight
         keep &= w > 0
-        energies.append(E[keep])
+        energies.append(E[keep] + offset)
         weights.append(w[keep])
         dG = float(_vib(d, np.array([v + 1.0]))[0] - _vib(d, np.array([float(v)]))[0])
         if dG <= 0:
             break
         v += 1
-    e = np.concatenate(energies)
-    g = np.concatenate(weights)
-    return e - e.min(), g
+    return np.concatenate(energies), np.concatenate(weights)
 
 
 def diatomic_terms(species, T) -> Terms:
@@ -210,7 +232,7 @@ def diatomic_terms(species, T) -> Terms:
     """
     T = np.atleast_1d(np.asarray(T, dtype=float))
     d = species.diatomic
-    e, g = diatomic_levels(d, float(T.max()))
+    e, g = diatomic_levels(d, float(T.max()), species.electronic[0][0] if d.excited else 1)
     out = level_sum(theta(e), g, T)
     if d.nuclear_spin is None and species.symmetry != 1:
         out = Terms(out.s_r - math.log(species.symmetry), out.h_rt, out.cp_r)
