@@ -68,23 +68,53 @@ def display_path(p: Path) -> str:
         return p.as_posix()
 
 
-_FINGERPRINT_SUFFIXES = (".py", ".j2", ".jinja", ".json", ".txt", ".md", ".yaml", ".tmpl")
+_DATA_SUFFIXES = (".j2", ".jinja", ".json", ".txt", ".md", ".yaml", ".tmpl", ".csv")
 
 
-def code_fingerprint() -> str:
-    """sha256 over the pipeline package's sources, templates and schemas.
+def _package_root() -> Path:
+    return Path(__file__).resolve().parent
 
-    Any edit to the code that turns inputs into output changes it, so cached
-    results of older code are never reused.
+
+def code_fingerprint(files: list[str] | None = None) -> str:
+    """sha256 over pipeline code: ``files`` (package-relative paths) or every module, plus all data files.
+
+    Templates, schemas and other data files of the package are always
+    included.  A build passes the modules its last full run actually used
+    (:func:`used_code_files`), so editing a module the build never imports
+    (say the benchmark) does not invalidate the cache, while any edit to code
+    that turns inputs into output does.
     """
-    root = Path(__file__).resolve().parent
-    h = hashlib.sha256()
-    for path in sorted(root.rglob("*")):
-        if "__pycache__" in path.parts or path.suffix not in _FINGERPRINT_SUFFIXES or not path.is_file():
+    root = _package_root()
+    names = set(files) if files is not None else set()
+    for path in root.rglob("*"):
+        if "__pycache__" in path.parts or not path.is_file():
             continue
-        h.update(path.relative_to(root).as_posix().encode() + b"\0")
-        h.update(path.read_bytes() + b"\0")
+        if path.suffix in _DATA_SUFFIXES or (files is None and path.suffix == ".py"):
+            names.add(path.relative_to(root).as_posix())
+    h = hashlib.sha256()
+    for rel in sorted(names):
+        try:
+            data = (root / rel).read_bytes()
+        except OSError:
+            data = b"\0missing"
+        h.update(rel.encode() + b"\0" + hashlib.sha256(data).digest())
     return h.hexdigest()
+
+
+def used_code_files() -> list[str]:
+    """Package-relative paths of the pipeline modules this process has imported."""
+    root = _package_root()
+    out = set()
+    for name, mod in list(sys.modules.items()):
+        if name != "pipeline" and not name.startswith("pipeline."):
+            continue
+        f = getattr(mod, "__file__", None)
+        if f:
+            try:
+                out.add(Path(f).resolve().relative_to(root).as_posix())
+            except ValueError:
+                pass
+    return sorted(out)
 
 
 class Unwritable(Exception):
@@ -214,7 +244,8 @@ class Cache:
     def store_entry(self, entry: dict, files: dict[str, bytes] | None = None) -> None:
         """Store one species' entry; binary ``files`` (output path → bytes) go to ``blobs/``."""
         entry = dict(entry)
-        refs = {}
+        entry.pop("_extra", None)
+        refs = dict(entry.get("files") or {})
         for rel, data in (files or {}).items():
             sha = sha256_bytes(data)
             blob = self.root / "blobs" / sha
