@@ -20,7 +20,7 @@ from pipeline.species import Diatomic, Torsion, _show
 
 #: keys of a ``diatomic:`` block → Diatomic field (all wavenumbers)
 _DIATOMIC_KEYS = ("omega_e", "omega_e_x_e", "omega_e_y_e", "B_e", "alpha_e", "gamma_e", "D_e", "beta_e", "H_e",
-                  "dissociation")
+                  "dissociation", "spin_spin", "spin_rotation")
 _DIATOMIC_REQUIRED = ("omega_e", "omega_e_x_e", "B_e")
 #: exchange symmetry of a homonuclear ground state: g+ and u− are symmetric
 STATE_SYMMETRIES = ("g+", "g-", "u+", "u-")

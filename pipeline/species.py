@@ -144,6 +144,8 @@ class Diatomic:
     nuclear_spin: float | None = None
     state_symmetry: str = ""
     excited: tuple = ()  # ((Te [m^-1], degeneracy, Diatomic), ...) excited states
+    spin_spin: float = 0.0  # λ of a ³Σ state [m^-1]
+    spin_rotation: float = 0.0  # γ of a ³Σ state [m^-1]
 
 
 @dataclass(frozen=True)

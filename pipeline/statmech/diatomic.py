@@ -182,15 +182,64 @@ def _state_levels(d, offset: float, weight: float, ceiling: float):
         E = Gv + F
         rising = Bv - 2 * Dv * jj + 3 * d.H_e * jj**2 > 0
         keep = np.logical_and.accumulate(rising) & (E <= cap)
-        w = np.where(J % 2 == 0, even_w, odd_w) * (2 * J + 1) * weight
-        keep &= w > 0
-        energies.append(E[keep] + offset)
-        weights.append(w[keep])
+        w = np.where(J % 2 == 0, even_w, odd_w) * weight
+        if d.spin_spin or d.spin_rotation:
+            # J here is N; the three fine-structure components of each N
+            for comp, deg in _triplet_components(Bv * jj - Dv * jj**2 + d.H_e * jj**3, J, d):
+                ok = keep & (w * deg > 0)
+                energies.append(Gv + comp[ok] + offset)
+                weights.append((w * deg)[ok])
+        else:
+            ok = keep & (w > 0)
+            energies.append(E[ok] + offset)
+            weights.append((w * (2 * J + 1))[ok])
         dG = float(_vib(d, np.array([v + 1.0]))[0] - _vib(d, np.array([float(v)]))[0])
         if dG <= 0:
             break
         v += 1
     return np.concatenate(energies), np.concatenate(weights)
+
+
+def _triplet_components(F, N, d):
+    """Fine structure of a ³Σ state: [(energies, degeneracies)] for J = N, N+1, N−1.
+
+    Case (b) basis, H = F(N) + γ N·S + (2λ/3)(3S_z² − S²):
+    J = N:  F(N) + 2λ/3 − γ;
+    J = N±1 from the 2×2 block of N = J−1 and N = J+1 for each J, diagonal
+    F(J−1) + γ(J−1) − (2λ/3)(J−1)/(2J+1) and F(J+1) − γ(J+2) − (2λ/3)(J+2)/(2J+1),
+    off-diagonal 2λ√(J(J+1))/(2J+1); the lower root is J = N+1 of the lower N.
+    N keeps its parity in the mixing, so the nuclear-spin weights of N apply.
+    Degeneracies (2J+1)/3: the species' ``electronic:`` block keeps the
+    multiplicity 3 as the term's degeneracy, which these levels redistribute.
+
+    Reference: R. Schlapp, Phys. Rev. 51, 342 (1937); J. M. Brown and
+    A. Carrington, *Rotational Spectroscopy of Diatomic Molecules* (2003), §9.
+    """
+    lam, gam = d.spin_spin, d.spin_rotation
+    n = N.astype(int)
+    Fx = np.append(F, [F[-1], F[-1]])  # F(N+1), F(N+2) at the end are never kept
+    mid = F + 2 * lam / 3 - gam
+    mid_deg = np.where(n >= 1, (2 * N + 1) / 3, 0.0)
+
+    def block(J):  # J ≥ 1: roots of the N = J−1, J+1 block
+        a = Fx[J - 1] + gam * (J - 1) - (2 * lam / 3) * (J - 1) / (2 * J + 1)
+        b = Fx[J + 1] - gam * (J + 2) - (2 * lam / 3) * (J + 2) / (2 * J + 1)
+        off = 2 * lam * np.sqrt(J * (J + 1.0)) / (2 * J + 1)
+        r = np.sqrt(((a - b) / 2) ** 2 + off**2)
+        return (a + b) / 2 - r, (a + b) / 2 + r
+
+    # J = N+1 (lower root of the block of J = N+1), for every N
+    up, _ = block(n + 1)
+    up_deg = (2 * N + 3) / 3
+    # J = N−1 (upper root of the block of J = N−1) for N ≥ 2; N = 1, J = 0 alone
+    lo = np.empty_like(F)
+    jl = np.maximum(n - 1, 1)
+    _, hi = block(jl)
+    lo[:] = hi
+    if n.size > 1:
+        lo[1] = F[1] - 2 * gam - 4 * lam / 3  # N = 1, J = 0: only N = 1 has J = 0
+    lo_deg = np.where(n >= 1, (2 * N - 1) / 3, 0.0)
+    return [(mid, mid_deg), (up, up_deg), (lo, lo_deg)]
 
 
 def diatomic_terms(species, T) -> Terms:
