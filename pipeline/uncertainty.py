@@ -12,19 +12,24 @@ A species file may give standard uncertainties (one standard deviation) for
   (unit of ``barrier_unit``).
 
 The inputs are taken as independent.  The law of propagation of uncertainty
-to first order (GUM, JCGM 100:2008, eq. 10) gives, for each output y(T),
+(GUM, JCGM 100:2008, eq. 10, with the second-order term of its §5.1.2 note
+for normally distributed inputs, cross terms left out) gives, for each
+output y(T),
 
-    u²(y) = Σ_i (∂y/∂x_i)² u²(x_i),
+    u²(y) = Σ_i [ (∂y/∂x_i)² u²(x_i) + ½ (∂²y/∂x_i²)² u⁴(x_i) ],
 
 with the sensitivities ∂y/∂x_i computed from the model itself by central
 differences of :func:`pipeline.thermo.thermo_table`, each call vectorised over
-the temperature grid.  Signed sensitivities are combined per input before
+the temperature grid, and the curvature from the model at x_i ± u(x_i).  The
+second term matters only where a slope changes sign (e.g. the Cp° of a
+hindered rotor against its barrier near the temperature of its Cp maximum),
+where the first-order result alone would fall to zero.  Signed sensitivities are combined per input before
 squaring, so correlated outputs are right: G° = H° − T S° takes
 ∂G/∂x = ∂H/∂x − T ∂S/∂x.  The formation enthalpy enters H° and G° with
 sensitivity 1 exactly (H° = ΔfH°298 + [H° − H°298]) and needs no model call.
 
 :func:`monte_carlo` samples the same inputs (JCGM 101:2008) as a check of
-the linearisation.  A species with no stated uncertainty gives ``None`` —
+the propagation.  A species with no stated uncertainty gives ``None`` —
 "not known", which is not the same as zero.
 """
 
@@ -61,8 +66,8 @@ class ThermoUncertainty:
 
     ``cp``, ``s``, ``g_fn`` = u(−(G°−H°298)/T) [J/mol/K]; ``h_minus_h298``,
     ``h`` (absolute, ΔfH°298 included) and ``g`` [J/mol].  ``inputs`` are
-    the uncertain inputs; ``g_budget[i]`` is input i's signed contribution
-    (∂G/∂x_i)·u(x_i) [J/mol] (None for a Monte Carlo estimate).
+    the uncertain inputs; ``g_budget[i]`` is input i's contribution to u(G°)
+    [J/mol], Σ_i g_budget[i]² = g² (None for a Monte Carlo estimate).
     """
 
     name: str
@@ -222,12 +227,36 @@ def sensitivities(species, T, pressure: float = C.bar, inputs=None) -> np.ndarra
     return out
 
 
-def propagate(species, T, pressure: float = C.bar) -> ThermoUncertainty | None:
-    """Linearised standard uncertainties of ``species`` on the grid ``T`` [K].
+def curvatures(species, T, pressure: float = C.bar, inputs=None) -> np.ndarray:
+    """∂²y/∂x_i² over one standard uncertainty, shape (n_inputs, 6, n_T).
 
-    u(y) = √(Σ_i (∂y/∂x_i · u(x_i))²) for each property y (see module
-    docstring; GUM, JCGM 100:2008, eq. 10).  Returns None when the species
-    file states no uncertainty.
+    [y(x + u) − 2 y(x) + y(x − u)] / u², the curvature the model shows across
+    the range the input is uncertain over (0 for ΔfH°, in which y is linear).
+    """
+    from pipeline.thermo import thermo_table
+
+    T = np.atleast_1d(np.asarray(T, dtype=float))
+    inputs = uncertain_inputs(species) if inputs is None else tuple(inputs)
+    out = np.zeros((len(inputs), 6, T.size))
+    todo = [i for i, inp in enumerate(inputs) if inp.key != "formation.uncertainty" and inp.u > 0]
+    if not todo:
+        return out
+    mid = _outputs(thermo_table(species, T, pressure))
+    for i in todo:
+        delta = np.zeros(len(inputs))
+        delta[i] = inputs[i].u
+        up = _outputs(thermo_table(perturb(species, inputs, delta), T, pressure))
+        down = _outputs(thermo_table(perturb(species, inputs, -delta), T, pressure))
+        out[i] = (up - 2.0 * mid + down) / inputs[i].u ** 2
+    return out
+
+
+def propagate(species, T, pressure: float = C.bar) -> ThermoUncertainty | None:
+    """Standard uncertainties of ``species`` on the grid ``T`` [K] from its stated input uncertainties.
+
+    u²(y) = Σ_i [(∂y/∂x_i)² u²(x_i) + ½ (∂²y/∂x_i²)² u⁴(x_i)] for each
+    property y (see module docstring; GUM, JCGM 100:2008, eq. 10 and §5.1.2).
+    Returns None when the species file states no uncertainty.
 
     Parameters
     ----------
@@ -256,22 +285,28 @@ def propagate(species, T, pressure: float = C.bar) -> ThermoUncertainty | None:
     if not inputs:
         return None
     T = np.atleast_1d(np.asarray(T, dtype=float))
-    sens = sensitivities(species, T, pressure, inputs)
-    u_in = np.array([inp.u for inp in inputs])
-    contrib = sens * u_in[:, None, None]
-    total = np.sqrt(np.sum(contrib**2, axis=0))
-    return _result(species, T, total, inputs, budget=contrib[:, 4].copy())
+    u_in = np.array([inp.u for inp in inputs])[:, None, None]
+    first = sensitivities(species, T, pressure, inputs) * u_in
+    second = curvatures(species, T, pressure, inputs) * u_in**2 / np.sqrt(2.0)
+    each = np.sqrt(first**2 + second**2)
+    total = np.sqrt(np.sum(each**2, axis=0))
+    return _result(species, T, total, inputs, budget=each[:, 4].copy())
 
 
 def monte_carlo(species, T, pressure: float = C.bar, samples: int = 400, seed: int = 0):
     """Monte Carlo standard uncertainties (JCGM 101:2008): sample, compute, take the spread.
 
-    Each of ``samples`` draws moves every uncertain input at once by a
-    normal deviate of its standard uncertainty (generator seeded with
-    ``seed``, so the result is reproducible); the standard deviation of the
-    computed properties (ddof = 1) is returned.  None when nothing is uncertain.
+    Every uncertain input is drawn from its normal distribution by Latin
+    hypercube sampling (McKay, Beckman & Conover, Technometrics 21, 239,
+    1979): each input's ``samples`` draws fall one in each of ``samples``
+    equally probable strata, in an order shuffled independently per input, so
+    a few hundred model runs give a stable spread.  The generator is seeded
+    with ``seed`` (same result every run).  Returns the standard deviation
+    (ddof = 1) of the computed properties, or None when nothing is uncertain.
     Costs ``samples`` model evaluations: a check, not part of a build.
     """
+    from scipy.special import ndtri
+
     from pipeline.thermo import thermo_table
 
     inputs = uncertain_inputs(species)
@@ -280,6 +315,7 @@ def monte_carlo(species, T, pressure: float = C.bar, samples: int = 400, seed: i
     T = np.atleast_1d(np.asarray(T, dtype=float))
     rng = np.random.default_rng(seed)
     u_in = np.array([inp.u for inp in inputs])
-    draws = rng.standard_normal((samples, len(inputs))) * u_in
-    values = np.array([_outputs(thermo_table(perturb(species, inputs, d), T, pressure)) for d in draws])
+    strata = np.stack([rng.permutation(samples) for _ in inputs], axis=1)
+    z = ndtri((strata + rng.random((samples, len(inputs)))) / samples)
+    values = np.array([_outputs(thermo_table(perturb(species, inputs, d), T, pressure)) for d in z * u_in])
     return _result(species, T, values.std(axis=0, ddof=1), inputs)

@@ -6,10 +6,13 @@ Input uncertainties used below are magnitudes, not check values:
   uncertainties for common quantum-chemistry methods reported by Irikura,
   Johnson & Kacker, J. Phys. Chem. A 109, 8430 (2005) (magnitude from memory);
 * per-mode 2 % and rotational constants 2 % — common practice for computed
-  frequencies and for B from a computed geometry (~1 % in bond lengths).
+  frequencies and for B from a computed geometry (~1 % in bond lengths);
+* torsional barrier ± 0.6 kJ/mol (5 % of ethane's) — common practice for a
+  computed barrier.
 
-The checks compare two independent evaluations of the same statement (first
-order propagation, JCGM 100:2008 eq. 10, against sampling, JCGM 101:2008), or
+The checks compare two independent evaluations of the same statement
+(propagation, JCGM 100:2008 eq. 10 with its second-order term, against
+sampling, JCGM 101:2008), or
 the model's slopes against the closed forms of the rigid rotor and harmonic
 oscillator (McQuarrie, *Statistical Mechanics*, 1976, eqs. 6-20 to 6-23 and 8-35).
 """
@@ -25,7 +28,7 @@ from scipy import constants as C
 from pipeline.diagnostics import InputError
 from pipeline.species import parse_species
 from pipeline.thermo import temperature_grid
-from pipeline.uncertainty import monte_carlo, propagate, uncertain_inputs
+from pipeline.uncertainty import monte_carlo, propagate, sensitivities, uncertain_inputs
 from pipeline.units import theta
 
 GRID = temperature_grid(200.0, 6000.0, 100.0)
@@ -44,14 +47,31 @@ def _with_uncertainties(sp):
 def test_linearised_matches_monte_carlo(database, name):
     sp = _with_uncertainties(database[name])
     lin = propagate(sp, GRID)
-    # 1000 draws: sampling error of a standard deviation ≈ 1/√(2·999) ≈ 2.2 %
+    # 1000 draws: sampling error of a standard deviation ≈ 1/√(2·999) ≈ 2.2 % (less with
+    # the Latin hypercube), so 10 % also covers what the second-order term leaves out
     mc = monte_carlo(sp, GRID, samples=1000, seed=20261201)
+    _agree(lin, mc, name)
+
+
+def _agree(lin, mc, name):
     for prop in lin.PROPERTIES:
         a, b = getattr(lin, prop), getattr(mc, prop)
         stated = a > 1e-9 * a.max()
-        assert stated.sum() >= len(GRID) - 1, prop  # only H−H298 at 298.15 K is exactly zero
+        assert stated.sum() >= len(lin.T) - 1, prop  # only H−H298 at 298.15 K is exactly zero
         worst = np.max(np.abs(b[stated] / a[stated] - 1.0))
         assert worst < 0.10, f"{name} {prop}: linearised vs Monte Carlo differ by {worst:.1%}"
+
+
+def test_torsion_barrier_matches_monte_carlo(database):
+    # ethane's hindered CH3 rotor: its Cp slope against the barrier changes sign near 320 K,
+    # where the first-order term alone falls to zero and the second-order term carries u
+    sp = database["C2H6"]
+    tors = tuple(dataclasses.replace(t, barrier_uncertainty=600.0) for t in sp.torsions)
+    sp = dataclasses.replace(sp, torsions=tors, formation_uncertainty=None)
+    T = temperature_grid(200.0, 3000.0, 100.0)
+    lin = propagate(sp, T)
+    # one input: 100 Latin-hypercube strata sample its normal distribution evenly
+    _agree(lin, monte_carlo(sp, T, samples=100, seed=7), "C2H6")
 
 
 def test_no_uncertainty_gives_none(database):
@@ -78,12 +98,16 @@ def test_formation_enthalpy_moves_h_and_g_only(database):
 
 def test_rotor_slope_is_rigid_rotor_closed_form(database):
     # S_rot/R = ln(√π/σ) + ½ ln(T³/θAθBθC) + 3/2: scaling all constants by (1+ε)
-    # moves S by −(3/2) R ε (McQuarrie 1976, eq. 8-35); Cp does not move.
+    # gives ∂S/∂ε = −(3/2) R and ∂²S/∂ε² = +(3/2) R at ε = 0 (McQuarrie 1976, eq. 8-35);
+    # Cp does not move.  u² = (3/2 R u)² + ½ (3/2 R u²)²
     sp = dataclasses.replace(database["H2O"], formation_uncertainty=None, rotor_uncertainty=0.01)
+    slope = sensitivities(sp, GRID)[0]
+    assert np.allclose(slope[1], -1.5 * C.R, rtol=1e-7)
     u = propagate(sp, GRID)
-    assert np.allclose(u.s, 1.5 * C.R * 0.01, rtol=1e-6)
+    expect = 1.5 * C.R * 0.01 * np.sqrt(1 + 0.01**2 / 2)
+    assert np.allclose(u.s, expect, rtol=1e-6)
     assert np.allclose(u.cp, 0.0, atol=1e-9)
-    assert np.allclose(u.g, GRID * 1.5 * C.R * 0.01, rtol=1e-6)
+    assert np.allclose(u.g, GRID * expect, rtol=1e-6)
 
 
 def test_frequency_slope_is_harmonic_closed_form(database):
@@ -93,13 +117,14 @@ def test_frequency_slope_is_harmonic_closed_form(database):
     u_modes = [0.0] * len(sp.frequencies)
     u_modes[2] = 0.01 * sp.frequencies[2]
     sp = dataclasses.replace(sp, formation_uncertainty=None, frequency_uncertainties=tuple(u_modes))
-    u = propagate(sp, GRID)
+    i = [inp.key for inp in uncertain_inputs(sp)].index("vibrations.uncertainties[2]")
+    slope = sensitivities(sp, GRID)[i, 0]  # ∂Cp/∂ν̃ [J/mol/K per m^-1]
     th = float(theta(sp.frequencies[2]))
     x = th / GRID
     ex = np.exp(x)
     dcv = (x * ex / (ex - 1) ** 2) * (2 - x * (ex + 1) / (ex - 1)) / GRID
-    expect = C.R * np.abs(dcv) * float(theta(u_modes[2]))
-    assert np.allclose(u.cp, expect, rtol=1e-6, atol=1e-12)
+    expect = C.R * dcv * th / sp.frequencies[2]
+    assert np.allclose(slope, expect, rtol=1e-6, atol=1e-15)
 
 
 def test_budget_names_dominant_input(database):
