@@ -75,16 +75,16 @@ TMID_COARSE_STEP = 100.0
 TMID_FINE_STEP = 10.0
 TMID_FINE_HALF_WIDTH = 90.0
 #: spacing [K] of the grid subset used while searching Tmid
-SEARCH_SPACING = 50.0
+SEARCH_SPACING = 80.0
 #: Lawson stopping rule: max error ≤ (1 + tol) × certified lower bound, or the iteration cap
-FINAL_TOL, FINAL_ITERATIONS = 0.01, 200
-SEARCH_TOL, SEARCH_ITERATIONS = 0.03, 40
+FINAL_TOL, FINAL_ITERATIONS = 0.02, 60
+SEARCH_TOL, COARSE_ITERATIONS, FINE_ITERATIONS = 0.03, 10, 8
 #: margin above the classical high-temperature Cp limit before warning (the fit's own error)
 CLASSICAL_MARGIN = 0.01
 #: a design-matrix condition number above this is reported as a warning
 CONDITION_WARNING = 1e8
-#: spacing [K] of the dense grid on which the fitted Cp is checked (sign, classical limit)
-CHECK_SPACING = 2.0
+#: spacing [K] of the dense grid on which a suspicious fitted Cp is checked (sign, classical limit)
+CHECK_SPACING = 0.5
 
 _X = 1000.0  # the temperature scale [K] of every solve
 
@@ -171,115 +171,187 @@ def _plain(v):
 # The design (species-independent)
 # --------------------------------------------------------------------------
 
+_IU = np.triu_indices(5)
+#: monomial coefficients (powers of u) → Chebyshev coefficients, row j = u^j
+_MONO_TO_CHEB = np.zeros((5, 5))
+for _j in range(5):
+    _c = np.polynomial.chebyshev.poly2cheb(np.eye(5)[_j])
+    _MONO_TO_CHEB[_j, : _c.size] = _c
+_BINOM = np.array([[math.comb(k, j) for j in range(5)] for k in range(5)], dtype=float)
 
-def _design(T, tlow, tmid, thigh, second_derivative):
-    """Design matrix B (n, p) on the grid T [K] and the maps to x-monomial coefficients.
 
-    Returns ``B, Lc, Hc`` with Cp/R on the grid = B @ θ, and the coefficients
-    of Cp/R as a polynomial in x = T/1000 (powers 0…4) equal to Lc @ θ (low
-    range) and Hc @ θ (high range).
+class _Basis:
+    """The pieces of the design that depend only on the grid and the range ends.
+
+    ``C`` (n, 5): T_j(u_i); ``P`` (n, 15): the upper-triangle products
+    T_j(u_i) T_k(u_i), so that Σ_i ω_i c_i c_iᵀ of every species is one
+    matrix product; ``K`` (5, 5): Chebyshev coefficients in u → monomial
+    coefficients in x = T/1000.
     """
-    x = np.asarray(T, dtype=float) / _X
-    xl, xm, xh = tlow / _X, tmid / _X, thigh / _X
-    u = (2 * x - xl - xh) / (xh - xl)
-    h = (xh - xl) / 2
-    v = (x - xm) / h
-    ks = (3, 4) if second_derivative else (2, 3, 4)
-    B = np.hstack([np.polynomial.chebyshev.chebvander(u, 4),
-                   np.where(x[:, None] > xm, v[:, None] ** np.array(ks, dtype=float), 0.0)])
-    p = B.shape[1]
-    Lc = np.zeros((5, p))
-    Hc = np.zeros((5, p))
-    for j in range(5):
-        coef = Chebyshev.basis(j, domain=[xl, xh]).convert(kind=Polynomial).coef
-        Lc[: coef.size, j] = coef
-        Hc[: coef.size, j] = coef
-    vpoly = Polynomial([-xm / h, 1.0 / h])
-    for i, k in enumerate(ks):
-        coef = (vpoly**k).coef
-        Hc[: coef.size, 5 + i] = coef
-    # orthonormalise the columns on the grid (B = Q R): the solves see Q √n, whose
-    # condition number is 1; the maps to coefficients absorb R⁻¹.
-    Q, R = np.linalg.qr(B)
-    Rinv = np.linalg.solve(R, np.eye(p)) * math.sqrt(B.shape[0])
-    return Q * math.sqrt(B.shape[0]), Lc @ Rinv, Hc @ Rinv
+
+    def __init__(self, T, tlow, thigh):
+        self.T = np.asarray(T, dtype=float)
+        self.tlow, self.thigh = float(tlow), float(thigh)
+        self.xl, self.xh = tlow / _X, thigh / _X
+        self.u = self._u(self.T)
+        self.C = np.polynomial.chebyshev.chebvander(self.u, 4)
+        self.P = self.C[:, _IU[0]] * self.C[:, _IU[1]]
+        K = np.zeros((5, 5))
+        for j in range(5):
+            coef = Chebyshev.basis(j, domain=[self.xl, self.xh]).convert(kind=Polynomial).coef
+            K[: coef.size, j] = coef
+        self.K = K
+
+    def _u(self, T):
+        return (2 * np.asarray(T, dtype=float) / _X - self.xl - self.xh) / (self.xh - self.xl)
+
+    def subset(self, idx) -> "_Basis":
+        b = object.__new__(_Basis)
+        b.__dict__.update(self.__dict__)
+        b.T, b.u, b.C, b.P = self.T[idx], self.u[idx], self.C[idx], self.P[idx]
+        return b
+
+    def mask(self, tmid):
+        """(R, n) 1.0 where the high range applies (T > Tmid), else 0.0."""
+        return (self.T[None, :] > np.asarray(tmid)[:, None]).astype(float)
+
+    def qmap(self, tmid, second_derivative):
+        """(R, nq, 5): Chebyshev coefficients of (u − u_mid)^k, k = 2, 3, 4 (or 3, 4)."""
+        um = self._u(np.asarray(tmid, dtype=float))
+        ks = (3, 4) if second_derivative else (2, 3, 4)
+        mono = np.zeros((um.size, len(ks), 5))
+        for i, k in enumerate(ks):
+            for j in range(k + 1):
+                mono[:, i, j] = _BINOM[k, j] * (-um) ** (k - j)
+        return mono @ _MONO_TO_CHEB
+
+    def design(self, tmid, second_derivative):
+        """Design matrix B (n, p) of one Tmid: Cp/R on the grid = B θ."""
+        q = self.qmap([tmid], second_derivative)[0]
+        return np.hstack([self.C, self.mask([tmid])[0][:, None] * (self.C @ q.T)])
 
 
-# --------------------------------------------------------------------------
-# Batched Lawson iteration
-# --------------------------------------------------------------------------
+def _unpack(F):
+    """(R, 15) upper-triangle entries → (R, 5, 5) symmetric."""
+    out = np.empty(F.shape[:-1] + (5, 5))
+    out[..., _IU[0], _IU[1]] = F
+    out[..., _IU[1], _IU[0]] = F
+    return out
+
+
+def _normal(basis, v, inv, mask, Mq):
+    """Weighted normal equations G θ = rhs (R, p, p), (R, p) with w_i = v_i y_i.
+
+    Minimising Σ_i w_i r_i², r_i = (Bθ)_i / y_i − 1, gives
+    G = Σ_i (v_i / y_i) b_i b_iᵀ and rhs = Σ_i v_i b_i, with b_i = [c_i, m_i Mq c_i].
+    """
+    a = v * inv
+    F = _unpack(a @ basis.P)
+    Fm = _unpack((a * mask) @ basis.P)
+    g = v @ basis.C
+    gm = (v * mask) @ basis.C
+    FmMt = Fm @ Mq.transpose(0, 2, 1)
+    nq = Mq.shape[1]
+    G = np.empty((v.shape[0], 5 + nq, 5 + nq))
+    G[:, :5, :5] = F
+    G[:, :5, 5:] = FmMt
+    G[:, 5:, :5] = FmMt.transpose(0, 2, 1)
+    G[:, 5:, 5:] = Mq @ FmMt
+    rhs = np.concatenate([g, (Mq @ gm[:, :, None])[:, :, 0]], axis=1)
+    return G, rhs
 
 
 def _spd_solve(G, b):
-    """Solve G z = b for stacks of small symmetric positive definite G (Cholesky, vectorised)."""
+    """Solve G z = b for a stack (R, p, p) of symmetric positive definite G (vectorised Cholesky)."""
     p = G.shape[-1]
-    L = np.zeros_like(G)
-    scale = np.einsum("...ii->...i", G).max(axis=-1)
-    tiny = 1e-15 * scale
+    A = np.ascontiguousarray(np.moveaxis(G, 0, -1))  # (p, p, R)
+    rhs = np.ascontiguousarray(b.T)  # (p, R)
+    L = np.zeros_like(A)
+    tiny = 1e-300 + 1e-15 * np.abs(A[np.arange(p), np.arange(p)]).max(axis=0)
     for j in range(p):
-        d = G[..., j, j] - np.einsum("...k,...k->...", L[..., j, :j], L[..., j, :j])
-        L[..., j, j] = np.sqrt(np.maximum(d, tiny))
+        d = A[j, j] - (L[j, :j] ** 2).sum(axis=0)
+        L[j, j] = np.sqrt(np.maximum(d, tiny))
         if j + 1 < p:
-            s = G[..., j + 1 :, j] - np.einsum("...ik,...k->...i", L[..., j + 1 :, :j], L[..., j, :j])
-            L[..., j + 1 :, j] = s / L[..., j, j, None]
-    z = np.empty_like(b)
-    for j in range(p):  # L y = b
-        z[..., j] = (b[..., j] - np.einsum("...k,...k->...", L[..., j, :j], z[..., :j])) / L[..., j, j]
-    for j in range(p - 1, -1, -1):  # Lᵀ z = y
-        z[..., j] = (z[..., j] - np.einsum("...k,...k->...", L[..., j + 1 :, j], z[..., j + 1 :])) / L[..., j, j]
-    return z
+            L[j + 1 :, j] = (A[j + 1 :, j] - (L[j + 1 :, :j] * L[j, :j][None]).sum(axis=1)) / L[j, j]
+    z = np.empty_like(rhs)
+    for j in range(p):
+        z[j] = (rhs[j] - (L[j, :j] * z[:j]).sum(axis=0)) / L[j, j]
+    for j in range(p - 1, -1, -1):
+        z[j] = (z[j] - (L[j + 1 :, j] * z[j + 1 :]).sum(axis=0)) / L[j, j]
+    return z.T
 
 
 @dataclass
 class _Lawson:
-    theta: np.ndarray  # (..., p) best parameters
-    error: np.ndarray  # (...,) max relative error of theta
-    bound: np.ndarray  # (...,) certified lower bound on the minimax error
-    iterations: int
+    alpha: np.ndarray  # (R, 5) Chebyshev coefficients of the low-range Cp/R
+    beta: np.ndarray  # (R, 5) high-range minus low-range Chebyshev coefficients
+    error: np.ndarray  # (R,) max relative Cp error of (alpha, beta)
+    bound: np.ndarray  # (R,) certified lower bound on the minimax error
+    weights: np.ndarray  # (R, n) final v = w / y
+    iterations: np.ndarray  # (R,)
 
 
-def _lawson(B, y, tol, max_iter):
-    """Minimax relative fit of y (S, n) by B (M, n, p) for every (candidate, species) pair.
+#: rows per block of the Lawson iteration: about this many grid values, so the work stays in cache
+BLOCK_ELEMENTS = 32768
 
-    Returns :class:`_Lawson` with arrays of shape (M, S, p) / (M, S).
+
+def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None, power=1.0):
+    """Minimax relative fits of the rows of y (R, n), row r with its own Tmid ``tmid[r]``.
+
+    Rows are processed in blocks of about BLOCK_ELEMENTS values (all
+    iterations of a block at once), which keeps the arrays in cache.
     """
-    M, n, p = B.shape
-    S = y.shape[0]
-    iu = np.triu_indices(p)
-    P = (B[:, :, :, None] * B[:, :, None, :])[:, :, iu[0], iu[1]]  # (M, n, p(p+1)/2)
+    R, n = y.shape
+    tmid = np.asarray(tmid, dtype=float)
+    step = max(1, BLOCK_ELEMENTS // n)
+    if R <= step:
+        return _lawson_block(basis, y, tmid, sd, tol, max_iter, v0, power)
+    parts = [_lawson_block(basis, y[i : i + step], tmid[i : i + step], sd, tol, max_iter,
+                           None if v0 is None else v0[i : i + step], power) for i in range(0, R, step)]
+    return _Lawson(*(np.concatenate([getattr(p, f.name) for p in parts])
+                     for f in dataclasses.fields(_Lawson)))
+
+
+def _lawson_block(basis, y, tmid, sd, tol, max_iter, v0=None, power=1.0):
+    R, n = y.shape
     inv = 1.0 / y
-    inv2 = inv * inv
-    w = np.full((M, S, n), 1.0 / n)
-    best_theta = np.zeros((M, S, p))
-    best_err = np.full((M, S), np.inf)
-    best_bound = np.zeros((M, S))
-    active = np.ones((M, S), dtype=bool)
-    it = 0
+    mask = basis.mask(tmid)
+    Mq = basis.qmap(tmid, sd)
+    v = inv / n if v0 is None else v0 / (v0 * y).sum(axis=1, keepdims=True)
+    res = _Lawson(np.zeros((R, 5)), np.zeros((R, 5)), np.full(R, np.inf), np.zeros(R), v.copy(),
+                  np.zeros(R, dtype=int))
+    act = np.arange(R)
+    ya, inva, maska, Mqa = y, inv, mask, Mq
     for it in range(1, max_iter + 1):
-        G_u = np.matmul(w * inv2, P)  # (M, S, q)
-        G = np.empty((M, S, p, p))
-        G[:, :, iu[0], iu[1]] = G_u
-        G[:, :, iu[1], iu[0]] = G_u
-        rhs = np.matmul(w * inv, B)  # (M, S, p)
+        G, rhs = _normal(basis, v, inva, maska, Mqa)
         theta = _spd_solve(G, rhs)
-        r = np.matmul(theta, B.transpose(0, 2, 1)) * inv - 1.0  # (M, S, n)
-        a = np.abs(r)
-        err = a.max(axis=-1)
-        wa = w * a
-        swa = wa.sum(axis=-1)
-        bound = np.where(swa > 0, (wa * a).sum(axis=-1) / np.where(swa > 0, swa, 1.0), 0.0)
-        upd = active & (err < best_err)
-        best_err = np.where(upd, err, best_err)
-        best_theta = np.where(upd[..., None], theta, best_theta)
-        best_bound = np.where(active, np.maximum(best_bound, bound), best_bound)
-        active = active & (best_err > (1.0 + tol) * best_bound) & (best_err > 1e-14)
-        if not active.any():
+        alpha = theta[:, :5]
+        beta = (theta[:, None, 5:] @ Mqa)[:, 0]
+        e = np.abs(alpha @ basis.C.T + maska * (beta @ basis.C.T) - ya)
+        ar = e * inva
+        err = ar.max(axis=1)
+        wa = v * e
+        den = wa.sum(axis=1)
+        bound = (wa * ar).sum(axis=1) / np.where(den > 0, den, 1.0)
+        better = err < res.error[act]
+        sel = act[better]
+        res.error[sel] = err[better]
+        res.alpha[sel] = alpha[better]
+        res.beta[sel] = beta[better]
+        res.bound[act] = np.maximum(res.bound[act], bound)
+        res.iterations[act] = it
+        done = (res.error[act] <= (1.0 + tol) * res.bound[act]) | (res.error[act] <= 1e-13)
+        v = (v * ar if power == 1.0 else v * ar**power) / np.where(den > 0, den, 1.0)[:, None]
+        v /= (v * ya).sum(axis=1, keepdims=True) if power != 1.0 else 1.0
+        res.weights[act] = v
+        if done.all() or it == max_iter:
             break
-        # Lawson update, with a floor that keeps the normal matrix regular
-        w = wa + 1e-14 * swa[..., None] / n
-        w /= w.sum(axis=-1, keepdims=True)
+        if done.mean() > 0.2:  # drop the converged rows
+            keep = ~done
+            act, v, ya, inva, maska, Mqa = act[keep], v[keep], ya[keep], inva[keep], maska[keep], Mqa[keep]
     # the bound is exact in exact arithmetic; at round-off level (exact fits) it may exceed the error
-    return _Lawson(best_theta, best_err, np.minimum(best_bound, best_err), it)
+    res.bound = np.minimum(res.bound, res.error)
+    return res
 
 
 # --------------------------------------------------------------------------
@@ -287,26 +359,20 @@ def _lawson(B, y, tol, max_iter):
 # --------------------------------------------------------------------------
 
 
-def _x_to_t(cx):
-    """x-monomial coefficients (…, 5) of Cp/R → T-monomial coefficients a1…a5 (…, 5)."""
-    return cx / _X ** np.arange(5)
-
-
 def _poly_int(a, T):
-    """(Σ a_k T^{k+1}/(k+1), Σ a_0 ln T + a_k T^k / k) for a (…, 5): H/R − a6 [K] and S/R − a7."""
+    """(Σ a_k T^{k+1}/(k+1), a_0 ln T + Σ_{k≥1} a_k T^k / k) for a (…, 5): H/R − a6 [K], S/R − a7."""
     h = T * (a[..., 0] + T * (a[..., 1] / 2 + T * (a[..., 2] / 3 + T * (a[..., 3] / 4 + T * a[..., 4] / 5))))
     s = a[..., 0] * np.log(T) + T * (a[..., 1] + T * (a[..., 2] / 2 + T * (a[..., 3] / 3 + T * a[..., 4] / 4)))
     return h, s
 
 
-def _coefficients(theta, Lc, Hc, tmid, dhf298, s298):
-    """Low and high seven-coefficient sets (…, 7) from parameters (…, p)."""
-    lo5 = _x_to_t(theta @ Lc.T)
-    hi5 = _x_to_t(theta @ Hc.T)
+def _coefficients(basis, alpha, beta, tmid, dhf298, s298):
+    """Low and high seven-coefficient sets (R, 7) in kelvin units."""
+    scale = _X ** np.arange(5)
+    lo5 = (alpha @ basis.K.T) / scale
+    hi5 = ((alpha + beta) @ basis.K.T) / scale
     # make Cp/R continuity exact in floating point (a correction at round-off level)
-    lo_cp = nasa7.cp_r(np.moveaxis(lo5, -1, 0), tmid)
-    hi_cp = nasa7.cp_r(np.moveaxis(hi5, -1, 0), tmid)
-    hi5[..., 0] += lo_cp - hi_cp
+    hi5[:, 0] += nasa7.cp_r(lo5.T, tmid) - nasa7.cp_r(hi5.T, tmid)
     h0, s0 = _poly_int(lo5, T_REF)
     a6_lo = dhf298 / C.R - h0
     a7_lo = s298 / C.R - s0
@@ -314,46 +380,40 @@ def _coefficients(theta, Lc, Hc, tmid, dhf298, s298):
     hh, sh = _poly_int(hi5, tmid)
     a6_hi = (hl + a6_lo) - hh
     a7_hi = (sl + a7_lo) - sh
-    low = np.concatenate([lo5, a6_lo[..., None], a7_lo[..., None]], axis=-1)
-    high = np.concatenate([hi5, a6_hi[..., None], a7_hi[..., None]], axis=-1)
+    low = np.column_stack([lo5, a6_lo, a7_lo])
+    high = np.column_stack([hi5, a6_hi, a7_hi])
     return low, high
 
 
 def _property_error(fit, ref, T, relative_floor):
-    """PropertyError rows for arrays (S, n)."""
+    """PropertyError per row of arrays (S, n)."""
     d = np.abs(fit - ref)
     rel = d / (np.maximum(np.abs(ref), 1.0) if relative_floor else np.abs(ref))
     ir = rel.argmax(axis=1)
     ia = d.argmax(axis=1)
-    rows = np.arange(fit.shape[0])
-    return [PropertyError(float(rel[k, ir[k]]), float(T[ir[k]]), float(d[k, ia[k]]), float(T[ia[k]]))
-            for k in rows]
+    k = np.arange(fit.shape[0])
+    return [PropertyError(float(a), float(b), float(c), float(e))
+            for a, b, c, e in zip(rel[k, ir], T[ir], d[k, ia], T[ia])]
 
 
-def _evaluate(low, high, tmid, T):
-    """Cp/R, H/RT, S/R of coefficient stacks (S, 7) on T (n,), ranges split at tmid (S,)."""
+def _evaluate(low, high, tmid, T, which=("cp_r", "h_rt", "s_r")):
+    """Properties of coefficient stacks (S, 7) on T (n,), ranges split at tmid (S,)."""
     lo = low.T[:, :, None]
     hi = high.T[:, :, None]
-    use_low = T[None, :] <= tmid[:, None]
-    return tuple(np.where(use_low, fn(lo, T), fn(hi, T)) for fn in (nasa7.cp_r, nasa7.h_rt, nasa7.s_r))
-
-
-def _dense_grid(tlow, thigh):
-    n = max(2, int(math.ceil((thigh - tlow) / CHECK_SPACING)) + 1)
-    return np.linspace(tlow, thigh, n)
+    use_low = T[None, :] <= np.asarray(tmid)[:, None]
+    return tuple(np.where(use_low, getattr(nasa7, f)(lo, T), getattr(nasa7, f)(hi, T)) for f in which)
 
 
 # --------------------------------------------------------------------------
-# Public API
+# Tmid candidates
 # --------------------------------------------------------------------------
 
 
 def tmid_candidates(tlow: float, thigh: float, T=None) -> np.ndarray:
     """Coarse Tmid candidates [K]: every 100 K in [800, 2000] K strictly inside (tlow, thigh).
 
-    A candidate needs three grid points of ``T`` (if given) above it and
-    three below.  If none is left, the 10 K multiple nearest the middle of the
-    range is used.
+    A candidate needs three grid points of ``T`` (if given) on each side.
+    If none is left, the 10 K multiple nearest the middle of the range is used.
 
     >>> tmid_candidates(200.0, 6000.0).tolist()[:3]
     [800.0, 900.0, 1000.0]
@@ -362,71 +422,73 @@ def tmid_candidates(tlow: float, thigh: float, T=None) -> np.ndarray:
     """
     lo, hi = TMID_SEARCH
     c = np.arange(lo, hi + 0.5 * TMID_COARSE_STEP, TMID_COARSE_STEP)
-    c = c[(c > tlow) & (c < thigh)]
-    if T is not None:
-        T = np.asarray(T)
-        c = np.array([t for t in c if (T < t).sum() >= 3 and (T > t).sum() >= 3])
+    c = _admissible(c, tlow, thigh, T)
     if c.size == 0:
         c = np.array([round((tlow + thigh) / 2 / TMID_FINE_STEP) * TMID_FINE_STEP])
     return c.astype(float)
 
 
+def _admissible(c, tlow, thigh, T=None):
+    c = np.asarray(c, dtype=float)
+    c = c[(c > tlow) & (c < thigh)]
+    if T is not None and c.size:
+        T = np.asarray(T)
+        below = np.searchsorted(T, c, side="left")
+        above = T.size - np.searchsorted(T, c, side="right")
+        c = c[(below >= 3) & (above >= 3)]
+    return c
+
+
 def _fine_candidates(best, tlow, thigh, T):
+    """Every 10 K within ±TMID_FINE_HALF_WIDTH of ``best`` and inside the search range."""
     lo, hi = TMID_SEARCH
-    c = best + TMID_FINE_STEP * np.arange(-round(TMID_FINE_HALF_WIDTH / TMID_FINE_STEP),
-                                          round(TMID_FINE_HALF_WIDTH / TMID_FINE_STEP) + 1)
-    c = c[(c >= lo) & (c <= hi) & (c > tlow) & (c < thigh)]
-    c = np.array([t for t in c if (T < t).sum() >= 3 and (T > t).sum() >= 3])
+    k = int(round(TMID_FINE_HALF_WIDTH / TMID_FINE_STEP))
+    c = best + TMID_FINE_STEP * np.arange(-k, k + 1)
+    c = _admissible(c[(c >= lo) & (c <= hi)], tlow, thigh, T)
     return c if c.size else np.array([best])
-
-
-def _search_indices(T):
-    """Indices of a ≈50 K subset of the grid T (ends kept)."""
-    if T.size < 3:
-        return np.arange(T.size)
-    step = float(np.median(np.diff(T)))
-    k = max(1, int(round(SEARCH_SPACING / step)))
-    return np.unique(np.r_[np.arange(0, T.size, k), T.size - 1])
-
-
-def _grid(table, tlow, thigh):
-    T = np.asarray(table.T, dtype=float)
-    if T.min() > tlow * (1 + 1e-9) or T.max() < thigh * (1 - 1e-9):
-        raise ValueError(
-            f"{table.name}: the table spans {T.min():g}–{T.max():g} K, the fit needs {tlow:g}–{thigh:g} K"
-        )
-    keep = (T >= tlow * (1 - 1e-12)) & (T <= thigh * (1 + 1e-12))
-    return keep
-
-
-def _choose_tmid(T, y, tlow, thigh, second_derivative):
-    """Automatic Tmid [K] for each row of y (S, n) on grid T: coarse then fine search."""
-    idx = _search_indices(T)
-    Ts, ys = T[idx], y[:, idx]
-    coarse = tmid_candidates(tlow, thigh, Ts)
-    B = np.stack([_design(Ts, tlow, c, thigh, second_derivative)[0] for c in coarse])
-    res = _lawson(B, ys, SEARCH_TOL, SEARCH_ITERATIONS)
-    best_coarse = _pick(coarse, res.error)
-    chosen = np.empty(y.shape[0])
-    for bc in np.unique(best_coarse):
-        rows = np.flatnonzero(best_coarse == bc)
-        fine = _fine_candidates(bc, tlow, thigh, Ts)
-        B = np.stack([_design(Ts, tlow, c, thigh, second_derivative)[0] for c in fine])
-        r = _lawson(B, ys[rows], SEARCH_TOL, SEARCH_ITERATIONS)
-        chosen[rows] = _pick(fine, r.error)
-    return chosen
 
 
 #: Tmid preferred among candidates whose errors tie (e.g. atoms whose Cp is exactly 5/2 R)
 TMID_PREFERRED = 1000.0
 
 
-def _pick(candidates, error):
-    """Per species (columns of error (M, S)), the candidate of least error; ties → nearest 1000 K."""
-    best = error.min(axis=0)
-    tie = error <= best * (1 + 1e-6) + 1e-12
-    dist = np.where(tie, np.abs(candidates - TMID_PREFERRED)[:, None], np.inf)
-    return candidates[dist.argmin(axis=0)]
+def _pick(cands, error, owner, nspecies):
+    """Index into the rows of the least error per owner; ties → the Tmid nearest 1000 K."""
+    best = np.full(nspecies, np.inf)
+    np.minimum.at(best, owner, error)
+    tie = error <= best[owner] * (1 + 1e-6) + 1e-9
+    key = np.where(tie, np.abs(cands - TMID_PREFERRED), np.inf)
+    order = np.lexsort((key, owner))
+    first = np.r_[True, owner[order][1:] != owner[order][:-1]]
+    out = np.empty(nspecies, dtype=int)
+    out[owner[order][first]] = order[first]
+    return out
+
+
+def _stride(T, spacing):
+    """Indices of a subset of the grid T with about ``spacing`` [K] between points (ends kept)."""
+    if T.size < 3:
+        return np.arange(T.size)
+    step = float(np.median(np.diff(T)))
+    k = max(1, int(round(spacing / step)))
+    return np.unique(np.r_[np.arange(0, T.size, k), T.size - 1])
+
+
+# --------------------------------------------------------------------------
+# Public API
+# --------------------------------------------------------------------------
+
+
+def _grid(table, tlow, thigh):
+    T = np.asarray(table.T, dtype=float)
+    if T.size == 0 or T.min() > tlow * (1 + 1e-9) or T.max() < thigh * (1 - 1e-9):
+        span = f"{T.min():g}–{T.max():g} K" if T.size else "nothing"
+        raise ValueError(f"{table.name}: the table spans {span}, the fit needs {tlow:g}–{thigh:g} K")
+    return (T >= tlow * (1 - 1e-12)) & (T <= thigh * (1 + 1e-12))
+
+
+_DEFAULTS = dict(tlow=200.0, tmid="auto", thigh=6000.0, cp_warning=0.005, second_derivative=False,
+                 formula=(), charge=0, cp_r_ceiling=None, with_limit=False)
 
 
 def fit_tables(tables, options) -> list[Nasa7Fit]:
@@ -435,121 +497,187 @@ def fit_tables(tables, options) -> list[Nasa7Fit]:
     ``options[i]`` is a dict of :func:`fit_table`'s keyword arguments for
     ``tables[i]`` (missing keys take fit_table's defaults).  Species that
     share a grid, a range and the derivative option are solved together as
-    stacked numpy problems, Tmid candidates included.
+    stacked numpy problems, Tmid candidates included: a 100 K search on an
+    80 K subset of the grid, a 10 K search (±90 K) on a 40 K subset, then
+    the final fit on the full grid, each warm-started from the last.
     """
     tables = list(tables)
-    options = [dict(o) for o in options]
     if len(options) != len(tables):
         raise ValueError(f"{len(tables)} tables but {len(options)} option sets")
-    defaults = dict(tlow=200.0, tmid="auto", thigh=6000.0, cp_warning=0.005, second_derivative=False,
-                    formula=(), charge=0, cp_r_ceiling=None, with_limit=False)
     opts = []
     for o in options:
-        unknown = set(o) - set(defaults)
+        unknown = set(o) - set(_DEFAULTS)
         if unknown:
             raise TypeError(f"unknown fit options: {sorted(unknown)}")
-        opts.append({**defaults, **o})
+        opts.append({**_DEFAULTS, **o})
     groups: dict[tuple, list[int]] = {}
+    keeps = []
     for i, (t, o) in enumerate(zip(tables, opts)):
         tlow, thigh = float(o["tlow"]), float(o["thigh"])
+        if not tlow < thigh:
+            raise ValueError(f"{t.name}: Tlow {tlow:g} K is not below Thigh {thigh:g} K")
         keep = _grid(t, tlow, thigh)
+        keeps.append(keep)
         T = np.asarray(t.T, dtype=float)[keep]
-        key = (T.tobytes(), tlow, thigh, bool(o["second_derivative"]))
-        groups.setdefault(key, []).append(i)
-    out: list[Nasa7Fit | None] = [None] * len(tables)
+        groups.setdefault((T.tobytes(), tlow, thigh, bool(o["second_derivative"])), []).append(i)
+    out: list = [None] * len(tables)
     for (tb, tlow, thigh, sd), rows in groups.items():
         T = np.frombuffer(tb, dtype=float)
-        y = np.stack([np.asarray(tables[i].cp, dtype=float)[_grid(tables[i], tlow, thigh)] / C.R
-                      for i in rows])
-        bad = [tables[i].name for i, yy in zip(rows, y) if not np.all(np.isfinite(yy)) or yy.min() <= 0]
+        y = np.stack([np.asarray(tables[i].cp, dtype=float)[keeps[i]] for i in rows]) / C.R
+        bad = [tables[i].name for i, yy in zip(rows, y) if not (np.all(np.isfinite(yy)) and yy.min() > 0)]
         if bad:
             raise ValueError(f"{', '.join(bad)}: the table's Cp is not positive and finite everywhere")
-        tmid = np.empty(len(rows))
-        auto = np.array([opts[i]["tmid"] == "auto" for i in rows])
-        for k, i in enumerate(rows):
-            if not auto[k]:
-                tm = float(opts[i]["tmid"])
-                if not tlow < tm < thigh:
-                    raise ValueError(f"{tables[i].name}: Tmid {tm:g} K is not inside ({tlow:g}, {thigh:g}) K")
-                tmid[k] = tm
-        if auto.any():
-            tmid[auto] = _choose_tmid(T, y[auto], tlow, thigh, sd)
-        for tm in np.unique(tmid):
-            sel = np.flatnonzero(tmid == tm)
-            for i, fit in zip([rows[k] for k in sel],
-                              _final(T, y[sel], [tables[rows[k]] for k in sel], [opts[rows[k]] for k in sel],
-                                     tlow, float(tm), thigh, sd, auto[sel])):
-                out[i] = fit
-    return out  # type: ignore[return-value]
+        fits = _fit_group(_Basis(T, tlow, thigh), y, [tables[i] for i in rows], [opts[i] for i in rows],
+                          [keeps[i] for i in rows], sd)
+        for i, f in zip(rows, fits):
+            out[i] = f
+    return out
 
 
-def _final(T, y, tables, opts, tlow, tmid, thigh, sd, auto):
-    """Final fits of species (rows of y) sharing grid T and Tmid; Nasa7Fit list."""
-    B, Lc, Hc = _design(T, tlow, tmid, thigh, sd)
-    res = _lawson(B[None], y, FINAL_TOL, FINAL_ITERATIONS)
-    theta = res.theta[0]
+def _fit_group(basis, y, tables, opts, keeps, sd):
+    """Tmid search and final fits of species sharing grid, range and options.
+
+    Stage 1: every 100 K (coarse); stage 2: ±20 and ±40 K around the best,
+    then ±10 K around the new best — all on an 80 K subset of the grid, each
+    stage warm-started with the weights of the best row so far; stage 3: the
+    chosen Tmid on the full grid, warm-started the same way.
+    """
+    T, tlow, thigh = basis.T, basis.tlow, basis.thigh
+    S = y.shape[0]
+    auto = np.array([o["tmid"] == "auto" for o in opts])
+    fixed = np.zeros(S)
+    for k, o in enumerate(opts):
+        if not auto[k]:
+            fixed[k] = float(o["tmid"])
+            if not tlow < fixed[k] < thigh:
+                raise ValueError(f"{tables[k].name}: Tmid {fixed[k]:g} K is not inside ({tlow:g}, {thigh:g}) K")
+    isub = _stride(T, SEARCH_SPACING)
+    bsub = basis.subset(isub)
+    ysub = y[:, isub]
+    state = _SearchState(S, isub.size)
+    sa = np.flatnonzero(auto)
+    if sa.size:
+        coarse = tmid_candidates(tlow, thigh, bsub.T)
+        owner = np.repeat(sa, coarse.size)
+        state.run(bsub, ysub, owner, np.tile(coarse, sa.size), sd, COARSE_ITERATIONS, warm=False)
+        for offsets in ((-40.0, -20.0, 20.0, 40.0), (-10.0, 10.0)):
+            owner_l, cand_l = [], []
+            for k in sa:
+                c = _admissible(state.tmid[k] + np.array(offsets), tlow, thigh, bsub.T)
+                c = c[(c >= TMID_SEARCH[0]) & (c <= TMID_SEARCH[1])]
+                owner_l.append(np.full(c.size, k))
+                cand_l.append(c)
+            owner = np.concatenate(owner_l).astype(int)
+            if owner.size:
+                state.run(bsub, ysub, owner, np.concatenate(cand_l), sd, FINE_ITERATIONS, warm=True)
+    sf = np.flatnonzero(~auto)
+    if sf.size:  # a warm-up for the fixed Tmid on the subset
+        state.run(bsub, ysub, sf, fixed[sf], sd, FINE_ITERATIONS, warm=False)
+    tmid = state.tmid.copy()
+    # stage 3: the full grid, starting from the subset weights at the nearest subset point
+    near = np.clip(np.searchsorted(bsub.T, T), 0, bsub.T.size - 1)
+    left = np.clip(near - 1, 0, None)
+    near = np.where(np.abs(bsub.T[left] - T) < np.abs(bsub.T[near] - T), left, near)
+    v0 = state.weights[:, near] + 1e-3 * state.weights.mean(axis=1, keepdims=True)
+    r3 = _lawson(basis, y, tmid, sd, FINAL_TOL, FINAL_ITERATIONS, v0=v0)
+    return _results(basis, y, tables, opts, keeps, sd, tmid, auto, r3)
+
+
+class _SearchState:
+    """Per species: the best Tmid so far, its error and Lawson weights on the search subset."""
+
+    def __init__(self, S, n):
+        self.error = np.full(S, np.inf)
+        self.tmid = np.zeros(S)
+        self.weights = np.zeros((S, n))
+
+    def run(self, basis, y, owner, cand, sd, iterations, warm):
+        r = _lawson(basis, y[owner], cand, sd, SEARCH_TOL, iterations,
+                    v0=self.weights[owner] if warm else None)
+        S = self.error.size
+        known = np.flatnonzero(np.isfinite(self.error))
+        all_owner = np.concatenate([known, owner])
+        all_cand = np.concatenate([self.tmid[known], cand])
+        all_err = np.concatenate([self.error[known], r.error])
+        all_w = np.concatenate([self.weights[known], r.weights])
+        pick = _pick(all_cand, all_err, all_owner, S)
+        sel = np.unique(all_owner)
+        self.error[sel] = all_err[pick[sel]]
+        self.tmid[sel] = all_cand[pick[sel]]
+        self.weights[sel] = all_w[pick[sel]]
+
+
+def _results(basis, y, tables, opts, keeps, sd, tmid, auto, res):
+    """Nasa7Fit objects with their FitQuality."""
+    T = basis.T
+    S = y.shape[0]
     dhf = np.array([t.dhf298 for t in tables])
     s298 = np.array([t.s298 for t in tables])
-    low, high = _coefficients(theta, Lc, Hc, tmid, dhf, s298)
-    S = y.shape[0]
-    tm = np.full(S, tmid)
-    cp_f, h_f, s_f = _evaluate(low, high, tm, T)
-    g_f = h_f - s_f
-    keep = [_grid(t, tlow, thigh) for t in tables]
-    h_t = np.stack([np.asarray(t.h, dtype=float)[k] for t, k in zip(tables, keep)]) / (C.R * T)
-    s_t = np.stack([np.asarray(t.s, dtype=float)[k] for t, k in zip(tables, keep)]) / C.R
+    low, high = _coefficients(basis, res.alpha, res.beta, tmid, dhf, s298)
+    cp_f, h_f, s_f = _evaluate(low, high, tmid, T)
+    h_t = np.stack([np.asarray(t.h, dtype=float)[k] for t, k in zip(tables, keeps)]) / (C.R * T)
+    s_t = np.stack([np.asarray(t.s, dtype=float)[k] for t, k in zip(tables, keeps)]) / C.R
     errs = {
         "cp_r": _property_error(cp_f, y, T, False),
         "h_rt": _property_error(h_f, h_t, T, True),
         "s_r": _property_error(s_f, s_t, T, True),
-        "g_rt": _property_error(g_f, h_t - s_t, T, True),
+        "g_rt": _property_error(h_f - s_f, h_t - s_t, T, True),
     }
-    # conditioning: design matrix with the 1/Cp row scaling; polynomial evaluation
-    conds = [float(np.linalg.cond(B / yy[:, None])) for yy in y]
-    terms = np.zeros((S, T.size))
-    for k in range(5):
-        terms += np.abs(np.where(T[None, :] <= tmid, low[:, k, None], high[:, k, None]) * T[None, :] ** k)
+    # conditioning: the 1/Cp-scaled design matrix (unit weights), and evaluation of the monomials
+    G0, _ = _normal(basis, np.ones_like(y), 1.0 / y, basis.mask(tmid), basis.qmap(tmid, sd))
+    ev = np.linalg.eigvalsh(G0)
+    cond = np.sqrt(ev[:, -1] / np.maximum(ev[:, 0], 1e-300 * ev[:, -1]))
+    Tp = T[None, :] ** np.arange(5)[:, None]  # (5, n)
+    use_low = T[None, :] <= tmid[:, None]
+    terms = np.where(use_low, np.abs(low[:, :5]) @ Tp, np.abs(high[:, :5]) @ Tp)
     ev_cond = (terms / np.abs(cp_f)).max(axis=1)
-    dense = _dense_grid(tlow, thigh)
-    cp_dense = _evaluate(low, high, tm, dense)[0]
     fits = []
     for k in range(S):
         o = opts[k]
         base = Nasa7Fit(
-            name=tables[k].name, formula=tuple(o["formula"]), tlow=tlow, tmid=tmid, thigh=thigh,
-            low=tuple(float(v) for v in low[k]), high=tuple(float(v) for v in high[k]),
+            name=tables[k].name, formula=tuple(o["formula"]), tlow=basis.tlow, tmid=float(tmid[k]),
+            thigh=basis.thigh, low=tuple(float(v) for v in low[k]), high=tuple(float(v) for v in high[k]),
             charge=int(o["charge"]),
         )
         cont = base.continuity()
-        limit = None
-        if o["with_limit"]:
-            limit = _lp_limit(B, y[k])
-        warnings = _warnings(errs["cp_r"][k], float(o["cp_warning"]), dense, cp_dense[k],
-                             o["cp_r_ceiling"], conds[k])
+        limit = _lp_limit(basis.design(tmid[k], sd), y[k]) if o["with_limit"] else None
+        warnings = _warnings(base, errs["cp_r"][k], float(o["cp_warning"]), T, cp_f[k],
+                             o["cp_r_ceiling"], float(cond[k]))
         q = FitQuality(
-            tmid=tmid, tmid_auto=bool(auto[k]),
+            tmid=float(tmid[k]), tmid_auto=bool(auto[k]),
             cp_r=errs["cp_r"][k], h_rt=errs["h_rt"][k], s_r=errs["s_r"][k], g_rt=errs["g_rt"][k],
-            minimax_bound=float(res.bound[0, k]), minimax_limit=limit,
+            minimax_bound=float(res.bound[k]), minimax_limit=limit,
             continuity_cp_r=cont["cp_r"], continuity_h_rt=cont["h_rt"], continuity_s_r=cont["s_r"],
-            condition=conds[k], evaluation_condition=float(ev_cond[k]), iterations=res.iterations,
-            points=int(T.size), second_derivative=sd, cp_warning=float(o["cp_warning"]),
-            warnings=tuple(warnings),
+            condition=float(cond[k]), evaluation_condition=float(ev_cond[k]),
+            iterations=int(res.iterations[k]), points=int(T.size), second_derivative=sd,
+            cp_warning=float(o["cp_warning"]), warnings=tuple(warnings),
         )
         fits.append(dataclasses.replace(base, quality=q))
     return fits
 
 
-def _warnings(cp_err: PropertyError, threshold, dense, cp_dense, ceiling, cond):
+def _warnings(fit, cp_err: PropertyError, threshold, T, cp_grid, ceiling, cond):
+    """Quality warnings of one fit (strings).
+
+    Sign and classical-limit checks use the fit grid; where the grid values
+    come near a limit (Cp/R < 5/2, the translational minimum of any gas, or
+    above the ceiling) the fitted polynomial is checked every 0.5 K.
+    """
     out = []
     if cp_err.max_rel > threshold:
         out.append(f"poor fit: max Cp error {100 * cp_err.max_rel:.2f} % at {cp_err.t_rel:g} K "
                    f"exceeds {100 * threshold:.2f} %")
-    if cp_dense.min() <= 0:
-        i = int(cp_dense.argmin())
-        out.append(f"fitted Cp is not positive: Cp/R = {cp_dense[i]:.4g} at {dense[i]:g} K")
-    if ceiling is not None and cp_dense.max() > ceiling * (1 + CLASSICAL_MARGIN):
-        i = int(cp_dense.argmax())
-        out.append(f"fitted Cp/R = {cp_dense[i]:.4f} at {dense[i]:g} K exceeds the classical "
+    lo_cp, hi_cp = float(cp_grid.min()), float(cp_grid.max())
+    Tc, cp_c = T, cp_grid
+    if lo_cp < 2.5 or (ceiling is not None and hi_cp > ceiling):
+        Tc = np.linspace(fit.tlow, fit.thigh, int(math.ceil((fit.thigh - fit.tlow) / CHECK_SPACING)) + 1)
+        cp_c = fit.cp_r(Tc)
+    if cp_c.min() <= 0:
+        i = int(cp_c.argmin())
+        out.append(f"fitted Cp is not positive: Cp/R = {cp_c[i]:.4g} at {Tc[i]:g} K")
+    if ceiling is not None and cp_c.max() > ceiling * (1 + CLASSICAL_MARGIN):
+        i = int(cp_c.argmax())
+        out.append(f"fitted Cp/R = {cp_c[i]:.4f} at {Tc[i]:g} K exceeds the classical "
                    f"high-temperature limit {ceiling:.4f} by more than {100 * CLASSICAL_MARGIN:g} %")
     if cond > CONDITION_WARNING:
         out.append(f"ill-conditioned fit: design condition number {cond:.3g}")
@@ -639,8 +767,7 @@ def minimax_limit(table, tlow: float = 200.0, tmid: float = 1000.0, thigh: float
     keep = _grid(table, tlow, thigh)
     T = np.asarray(table.T, dtype=float)[keep]
     y = np.asarray(table.cp, dtype=float)[keep] / C.R
-    B = _design(T, tlow, tmid, thigh, second_derivative)[0]
-    return _lp_limit(B, y)
+    return _lp_limit(_Basis(T, tlow, thigh).design(tmid, second_derivative), y)
 
 
 def classical_cp_r(species, tlow: float = 200.0, thigh: float = 6000.0) -> float:
@@ -695,3 +822,68 @@ def fit_options(species, settings) -> dict:
     return dict(tlow=float(s.tmin), tmid=s.tmid if s.tmid == "auto" else float(s.tmid),
                 thigh=float(s.tmax), cp_warning=float(s.cp_warning), formula=species.formula,
                 charge=species.charge, cp_r_ceiling=classical_cp_r(species, s.tmin, s.tmax))
+
+
+# --------------------------------------------------------------------------
+# Benchmark
+# --------------------------------------------------------------------------
+
+
+def synthetic_species(n: int, seed: int = 0) -> list:
+    """``n`` random but plausible rigid-rotor harmonic-oscillator species (benchmarks, tests).
+
+    2–10 atoms of C, H, N, O; linear (diatomics, some triatomics) or
+    nonlinear; rotational constants log-uniform in 0.05–20 cm⁻¹ (A ≥ B ≥ C);
+    3N−5 or 3N−6 wavenumbers log-uniform in 150–3800 cm⁻¹; a ground level of
+    degeneracy 1–3 and, for a third of them, one excited level at
+    100–20000 cm⁻¹; ΔfH°298 uniform in ±500 kJ/mol.  The numbers are
+    invented (synthetic load, not data).
+    """
+    from pipeline.elements import formula_mass
+    from pipeline.species import Species
+
+    rng = np.random.default_rng(seed)
+    out = []
+    for i in range(n):
+        atoms = int(rng.integers(2, 11))
+        counts = rng.multinomial(atoms, [0.3, 0.4, 0.1, 0.2])
+        formula = tuple((el, int(c)) for el, c in zip(("C", "H", "N", "O"), counts) if c)
+        linear = atoms == 2 or (atoms == 3 and rng.random() < 0.3)
+        nmodes = 3 * atoms - (5 if linear else 6)
+        rot = np.sort(np.exp(rng.uniform(np.log(0.05), np.log(20.0), 1 if linear else 3)))[::-1]
+        freqs = np.exp(rng.uniform(np.log(150.0), np.log(3800.0), nmodes))
+        levels = [(int(rng.integers(1, 4)), 0.0)]
+        if rng.random() < 1 / 3:
+            levels.append((int(rng.integers(1, 5)), float(rng.uniform(100.0, 20000.0)) * 100))
+        out.append(Species(
+            name=f"X{i}", formula=formula, shape="linear" if linear else "nonlinear",
+            symmetry=int(rng.integers(1, 4)), mass=formula_mass(dict(formula)) * C.atomic_mass,
+            sources=("synthetic",), formation_enthalpy=float(rng.uniform(-5e5, 5e5)),
+            rotational_constants=tuple(float(b) * 100 for b in rot),
+            frequencies=tuple(float(f) * 100 for f in freqs), electronic=tuple(levels),
+        ))
+    return out
+
+
+def benchmark_fit(n: int = 1000, seed: int = 0, repeat: int = 3) -> dict:
+    """Time :func:`fit_tables` (Tmid search included) on ``n`` synthetic species.
+
+    The tables are computed first and not timed.  Returns the best wall time
+    of ``repeat`` runs [s], species per second, and the worst certified
+    error/limit ratio.  ``python -c "import pipeline.fit as f; print(f.benchmark_fit())"``.
+    """
+    import time
+
+    from pipeline.thermo import thermo_table
+
+    species = synthetic_species(n, seed)
+    tables = [thermo_table(sp) for sp in species]
+    options = [dict(formula=sp.formula) for sp in species]
+    best = math.inf
+    fits = []
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        fits = fit_tables(tables, options)
+        best = min(best, time.perf_counter() - t0)
+    return dict(species=n, seconds=best, species_per_second=n / best,
+                worst_ratio=max(f.quality.limit_ratio for f in fits))
