@@ -185,3 +185,73 @@ def markdown(changes: list[Change], old_label: str, new_label: str, n_old: int, 
         row.append("; ".join(c.notes))
         lines.append("| " + " | ".join(row) + " |")
     return "\n".join(lines) + "\n"
+
+
+# --------------------------------------------------------------------------
+# "What changed since the last build" (a REPORT.md section)
+# --------------------------------------------------------------------------
+
+#: the section is fenced by these lines, so that `statherm check` can leave it out
+#: (it depends on the previous build, which a fresh checkout does not have)
+SINCE_BEGIN = "<!-- statherm: since-last-build -->"
+SINCE_END = "<!-- statherm: end since-last-build -->"
+
+
+def since_last_build(old: list, new: list) -> str:
+    """A short Markdown section naming what changed between the last build's records and these.
+
+    ``old`` and ``new`` are lists of Nasa7Fit.  For each changed species the
+    largest change of Cp and G and where; the section is fenced by
+    :data:`SINCE_BEGIN` / :data:`SINCE_END`.  Empty when nothing changed.
+    """
+    changes = compare(old, new)
+    if not changes:
+        return ""
+    count = {s: sum(c.status == s for c in changes) for s in ("changed", "added", "removed")}
+    lines = [
+        SINCE_BEGIN,
+        "## What changed since the last build",
+        "",
+        f"{count['changed']} changed, {count['added']} added, {count['removed']} removed "
+        "(largest change new − old, and where).",
+        "",
+        "| species | status | ΔCp [J/mol/K] | at T [K] | ΔG [kJ/mol] | at T [K] |",
+        "|---|---|---:|---:|---:|---:|",
+    ]
+    for c in changes:
+        row = [c.name, c.status]
+        for label in ("Cp", "G"):
+            d = c.largest.get(label)
+            row += [_num(d[0]), f"{d[1]:g}"] if d else ["", ""]
+        lines.append("| " + " | ".join(row) + " |")
+    lines.append(SINCE_END)
+    return "\n".join(lines) + "\n"
+
+
+def strip_since_last_build(text: str) -> str:
+    """``text`` without its since-last-build section (and the blank line after it).
+
+    >>> strip_since_last_build("# R\\n\\n" + SINCE_BEGIN + "\\nx\\n" + SINCE_END + "\\n\\nrest\\n")
+    '# R\\n\\nrest\\n'
+    """
+    start = text.find(SINCE_BEGIN)
+    if start < 0:
+        return text
+    end = text.find(SINCE_END, start)
+    if end < 0:
+        return text
+    end += len(SINCE_END)
+    while text[end:end + 1] == "\n" and text[end + 1:end + 2] == "\n":
+        end += 1
+    return text[:start] + text[end + 1:]
+
+
+def with_since_last_build(report: str, section: str) -> str:
+    """``report`` with ``section`` placed after its title line (replacing any previous one)."""
+    report = strip_since_last_build(report)
+    if not section:
+        return report
+    head, sep, rest = report.partition("\n\n")
+    if head.startswith("# ") and sep:
+        return head + "\n\n" + section + "\n" + rest
+    return section + "\n" + report

@@ -319,3 +319,76 @@ def monte_carlo(species, T, pressure: float = C.bar, samples: int = 400, seed: i
     z = ndtri((strata + rng.random((samples, len(inputs)))) / samples)
     values = np.array([_outputs(thermo_table(perturb(species, inputs, d), T, pressure)) for d in z * u_in])
     return _result(species, T, values.std(axis=0, ddof=1), inputs)
+
+
+# --------------------------------------------------------------------------
+# What the writers print (no formatting here: plain numbers and names)
+# --------------------------------------------------------------------------
+
+#: temperatures [K] at which REPORT.md quotes u(G°)
+REPORT_TEMPERATURES = (298.15, 1000.0)
+
+
+def _sig(x: float, digits: int = 6) -> float:
+    """``x`` to ``digits`` significant digits (stable, readable numbers in outputs)."""
+    return float(f"{float(x):.{digits}g}")
+
+
+def structured(u: ThermoUncertainty | None, T) -> dict | None:
+    """The ± band for thermo.yaml: standard uncertainties (k = 1) at temperatures ``T`` [K].
+
+    Keys: ``coverage_factor``, ``inputs`` (species-file keys), ``T`` [K],
+    ``cp``, ``s`` [J/mol/K], ``h_minus_h298``, ``h``, ``g`` [J/mol]
+    (6 significant digits).  None when the species states no uncertainty.
+
+    >>> from pipeline.species import Species
+    >>> ar = Species(name="Ar", formula=(("Ar", 1),), shape="atom", symmetry=1,
+    ...              mass=39.948 * C.atomic_mass, sources=("x",), formation_enthalpy=0.0,
+    ...              formation_uncertainty=250.0)
+    >>> structured(propagate(ar, [298.15, 1000.0]), [1000.0])["g"]
+    [250.0]
+    """
+    if u is None:
+        return None
+    T = [float(t) for t in np.atleast_1d(T)]
+    out: dict = {"coverage_factor": 1, "inputs": [i.key for i in u.inputs], "T": T}
+    for prop in ("cp", "s", "h_minus_h298", "h", "g"):
+        out[prop] = [_sig(u.at(prop, t)) for t in T]
+    return out
+
+
+def table_columns(u: ThermoUncertainty | None, T) -> dict[str, np.ndarray]:
+    """Columns for a property table at ``T`` [K]: u(Cp), u(S) [J/mol/K], u(H−H298), u(G) [kJ/mol].
+
+    Empty when the species states no uncertainty (the table then has no
+    u columns, rather than columns of zeros).
+    """
+    if u is None:
+        return {}
+    T = np.atleast_1d(np.asarray(T, dtype=float))
+    return {
+        "u(Cp) [J/mol/K]": np.interp(T, u.T, u.cp),
+        "u(S) [J/mol/K]": np.interp(T, u.T, u.s),
+        "u(H-H298) [kJ/mol]": np.interp(T, u.T, u.h_minus_h298) / 1e3,
+        "u(G) [kJ/mol]": np.interp(T, u.T, u.g) / 1e3,
+    }
+
+
+def report_values(u: ThermoUncertainty | None) -> dict | None:
+    """u(G°) [kJ/mol] at 298.15 K and 1000 K and the input that dominates it at 1000 K.
+
+    ``{"g298": ..., "g1000": ..., "dominant": "vibrations.scale_uncertainty"}``
+    or None when the species states no uncertainty.
+    """
+    if u is None:
+        return None
+    return {
+        "g298": _sig(u.at("g", REPORT_TEMPERATURES[0]) / 1e3),
+        "g1000": _sig(u.at("g", REPORT_TEMPERATURES[1]) / 1e3),
+        "dominant": u.dominant(REPORT_TEMPERATURES[1]),
+    }
+
+
+def exceeds(values: dict | None, limit_kj: float) -> bool:
+    """True if u(G°, 1000 K) of :func:`report_values` is above ``limit_kj`` [kJ/mol]."""
+    return values is not None and values["g1000"] > limit_kj
