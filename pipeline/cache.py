@@ -52,10 +52,13 @@ def sha256_json(value) -> str:
 
 
 def species_files(directory: str | Path) -> list[Path]:
-    """The species files of a database folder (``*.yaml``/``*.yml``), sorted by name."""
+    """The species files of a database folder (``*.yaml``/``*.yml``), sorted by name.
+
+    The folder's settings file ``statherm.yaml`` is not a species file.
+    """
     d = Path(directory)
     return sorted(
-        (p for p in d.iterdir() if p.suffix in (".yaml", ".yml") and p.is_file()),
+        (p for p in d.iterdir() if p.suffix in (".yaml", ".yml") and p.is_file() and p.name != "statherm.yaml"),
         key=lambda p: p.name,
     )
 
