@@ -1,0 +1,287 @@
+"""Writers: a species' rendered fragments, and the database assembled from them.
+
+Two calls, made by :mod:`pipeline.build`:
+
+``species_fragments(species, table, fit, settings) -> dict[str, str]``
+    Everything one species contributes to ``output/``, rendered (the
+    expensive, cacheable part).  Keys:
+
+    ``name``
+        the record name (the database is ordered by it);
+    ``record``
+        its four 80-column lines of ``thermo.dat``;
+    ``yaml``
+        its entry in the ``species:`` list of ``thermo.yaml``;
+    ``report_row``
+        its row of the species table of ``REPORT.md``;
+    ``report_note``
+        its line in REPORT.md's list of species with a large u(G°), or "";
+    ``table_csv``
+        the full text of ``tables/NAME.csv``.
+
+``assemble(fragments, settings) -> dict[str, bytes]``
+    Output-relative path → exact bytes for the whole database
+    (``thermo.dat``, ``thermo.yaml``, ``REPORT.md``, ``tables/NAME.csv``),
+    species in name order: string joins and a header, nothing recomputed,
+    no timestamps, no absolute paths.
+
+The coefficients printed are those of :func:`pipeline.writers.rounding.printed_fit`
+(rounded, then re-balanced so that the printed numbers keep the fit's
+constraints); the templates in ``pipeline/templates`` only format.  The
+formats are described in ``docs/format.md``.
+"""
+
+from __future__ import annotations
+
+from pathlib import PurePath
+
+from pipeline.writers.rounding import printed_fit
+
+__all__ = ["species_fragments", "assemble", "printed_fit", "record_elements", "FORMAT_VERSION", "table_path"]
+
+#: version of the thermo.yaml format (docs/format.md); bump on incompatible change
+FORMAT_VERSION = 1
+
+#: temperatures [K] of the ± band written into thermo.yaml (those inside the species' range);
+#: the tables carry it at every table temperature
+U_BAND_T = (200.0, 298.15, 500.0, 1000.0, 1500.0, 2000.0, 3000.0, 4000.0, 5000.0, 6000.0)
+
+#: fragment keys (see module docstring)
+KEYS = ("name", "record", "yaml", "report_row", "report_note", "table_csv")
+
+_PRESSURE_LABEL = {"bar": "1 bar", "atm": "1 atm"}
+_UNITS = {
+    "temperature": "K", "coefficients": "Cp/R, H/RT, S/R (dimensionless)", "molar_mass": "kg/mol",
+    "enthalpy": "J/mol", "entropy": "J/mol/K", "heat_capacity": "J/mol/K", "pressure": "Pa",
+}
+
+
+def table_path(name: str) -> str:
+    """Output-relative path of a species' property table.
+
+    >>> table_path("CH3")
+    'tables/CH3.csv'
+    """
+    return f"tables/{name}.csv"
+
+
+def record_elements(formula, charge: int = 0) -> list[tuple[str, int]]:
+    """The element fields of a record: the formula in its own order, and for an
+    ion the electron as element ``E`` with count −charge (common practice).
+
+    >>> record_elements((("O", 1), ("H", 1)), charge=1)
+    [('O', 1), ('H', 1), ('E', -1)]
+    """
+    out = [(el, int(n)) for el, n in formula]
+    if charge:
+        out.append(("E", -int(charge)))
+    return out
+
+
+def identifier(sha256: str) -> str:
+    """Columns 19–24: the first six hex digits of the species file's sha256, upper case.
+
+    Stable for unchanged input (unlike a date), and different when the file changes.
+
+    >>> identifier("9f86d081884c7d659a2feaa0c55ad015a3bf4f1b2b0b822cd15d6c15b0f00a08")
+    '9F86D0'
+    """
+    return sha256[:6].upper()
+
+
+# --------------------------------------------------------------------------
+# One species
+# --------------------------------------------------------------------------
+
+
+def species_fragments(species, table, fit, settings) -> dict[str, str]:
+    """Render everything ``species`` contributes to the database (keys: module docstring).
+
+    Parameters
+    ----------
+    species : Species
+    table : ThermoTable
+        The species' table on the fit grid (fit errors in REPORT.md are taken over it).
+    fit : Nasa7Fit
+        The fitted polynomials (full precision; printed via :func:`printed_fit`).
+    settings : Settings
+        The build settings (the species file's ``fit:`` overrides are applied here).
+    """
+    import numpy as np
+
+    from pipeline import __version__
+    from pipeline.thermo import T_REF, temperature_grid, thermo_table
+    from pipeline.writers.formats import render
+
+    s = settings.for_species(species)
+    printed = printed_fit(fit)
+    quality = fit.quality.as_dict() if hasattr(fit.quality, "as_dict") else {}
+    elements = record_elements(species.formula, species.charge)
+    if len(elements) > 5:
+        raise ValueError(f"{species.name}: {len(elements)} elements (electron included) do not fit a record (at most 5)")
+    ident = identifier(species.sha256) if species.sha256 else ""
+    record = render(
+        "record.dat.j2", name=species.name, identifier=ident,
+        elements=elements[:4] + [None] * (4 - len(elements[:4])), fifth=elements[4] if len(elements) > 4 else None,
+        phase=printed.phase, tlow=printed.tlow, tmid=printed.tmid, thigh=printed.thigh,
+        low=printed.low, high=printed.high,
+    )
+    _check_record(species.name, record)
+
+    # property table at the table step, with the printed polynomials beside it
+    grid = temperature_grid(s.tmin, s.tmax, s.table_step)
+    tab = thermo_table(species, grid, s.pressure_pa)
+    u = _uncertainty(species, tab.T, s.pressure_pa)
+    T = tab.T
+    h298 = float(printed.h(T_REF))
+    cp_f, s_f, dh_f = printed.cp(T), printed.s(T), printed.h(T) - h298
+    gfn_f = s_f - dh_f / T
+    columns = [
+        ("T [K]", T, ".2f"),
+        ("Cp [J/mol/K]", tab.cp, ".6f"), ("S [J/mol/K]", tab.s, ".6f"),
+        ("H-H298 [kJ/mol]", tab.h_minus_h298 / 1e3, ".6f"), ("-(G-H298)/T [J/mol/K]", tab.g_fn, ".6f"),
+        ("Cp fit [J/mol/K]", cp_f, ".6f"), ("S fit [J/mol/K]", s_f, ".6f"),
+        ("H-H298 fit [kJ/mol]", dh_f / 1e3, ".6f"), ("-(G-H298)/T fit [J/mol/K]", gfn_f, ".6f"),
+        ("Cp residual [J/mol/K]", cp_f - tab.cp, ".3e"), ("S residual [J/mol/K]", s_f - tab.s, ".3e"),
+        ("H-H298 residual [kJ/mol]", (dh_f - tab.h_minus_h298) / 1e3, ".3e"),
+        ("-(G-H298)/T residual [J/mol/K]", gfn_f - tab.g_fn, ".3e"),
+    ]
+    if u is not None:
+        from pipeline.uncertainty import table_columns
+
+        columns += [(head, values, ".6f") for head, values in table_columns(u, T).items()]
+    table_csv = render("table.csv.j2", header=[c[0] for c in columns], rows=_cells(columns))
+
+    # thermo.yaml entry
+    uncertainty = None
+    report_u = None
+    if u is not None:
+        from pipeline.uncertainty import exceeds, report_values, structured
+
+        uncertainty = structured(u, [t for t in U_BAND_T if s.tmin <= t <= s.tmax])
+        report_u = report_values(u)
+    entry = render(
+        "species.yaml.j2", name=species.name, composition={el: n for el, n in species.formula},
+        charge=int(species.charge), phase=fit.phase, molar_mass=float(species.molar_mass), tmid=float(fit.tmid),
+        ranges=[
+            {"tmin": float(fit.tlow), "tmax": float(fit.tmid), "coefficients": [float(a) for a in fit.low]},
+            {"tmin": float(fit.tmid), "tmax": float(fit.thigh), "coefficients": [float(a) for a in fit.high]},
+        ],
+        reference_state={
+            "dhf298": float(table.dhf298), "s298": float(table.s298), "cp298": float(table.cp298),
+            "h298_minus_h0": float(table.h298_minus_h0),
+        },
+        quality=quality, uncertainty=uncertainty, sources=list(species.sources),
+        species_file=PurePath(species.path).name if species.path else "", sha256=species.sha256,
+        version=__version__, model=s.model_key(), pressure_pa=float(s.pressure_pa),
+    )
+
+    # REPORT.md row, errors of the printed polynomials over the fit grid
+    Tf = np.asarray(table.T, dtype=float)
+    inside = (Tf >= printed.tlow) & (Tf <= printed.thigh)
+    Tf = Tf[inside]
+    cp_err = np.abs(printed.cp(Tf) - table.cp[inside]) / np.abs(table.cp[inside])
+    h_err = np.abs(printed.h(Tf) - table.h[inside])
+    s_err = np.abs(printed.s(Tf) - table.s[inside])
+    warnings = list(quality.get("warnings", []))
+    note = ""
+    if report_u is not None and exceeds(report_u, s.g_uncertainty_warning):
+        warnings.append(f"u(G°, 1000 K) = {report_u['g1000']:.2f} kJ/mol")
+        dominant = f" (largest contribution: `{report_u['dominant']}`)" if report_u["dominant"] else ""
+        note = f"- `{species.name}`: {report_u['g1000']:.2f} kJ/mol{dominant}\n"
+    plot = ""
+    if s.plots:
+        from pipeline.plots import PLOTS_DIR, plot_file_name
+
+        plot = f"[plot](<{PLOTS_DIR}/{plot_file_name(species.name)}>)"
+    row = render(
+        "report_row.md.j2", name=species.name, formula=" ".join(f"{el}{n}" for el, n in elements),
+        dhf298=table.dhf298 / 1e3, s298=table.s298, cp298=table.cp298, tmid=printed.tmid,
+        tmid_auto=bool(quality.get("tmid_auto", False)),
+        cp_error=float(cp_err.max()) if len(Tf) else None, h_error=float(h_err.max()) if len(Tf) else None,
+        s_error=float(s_err.max()) if len(Tf) else None, continuity=max(printed.continuity().values()),
+        u_g298=report_u["g298"] if report_u else None, u_g1000=report_u["g1000"] if report_u else None,
+        plot=plot, warnings="; ".join(w.replace("|", "/") for w in warnings),
+    )
+    return {"name": species.name, "record": record, "yaml": entry, "report_row": row,
+            "report_note": note, "table_csv": table_csv}
+
+
+def _uncertainty(species, T, pressure):
+    """Propagated uncertainties on T, or None when the species file states none."""
+    from pipeline.uncertainty import propagate, uncertain_inputs
+
+    if not uncertain_inputs(species):
+        return None
+    return propagate(species, T, pressure)
+
+
+def _cells(columns) -> list[list[str]]:
+    """Rows of formatted CSV cells from (header, values, format) columns."""
+    from pipeline.writers.formats import csv_number
+
+    line = ",".join("{:" + fmt + "}" for _, _, fmt in columns)
+    rows = []
+    for values in zip(*(c[1].tolist() for c in columns)):
+        text = line.format(*(v + 0.0 for v in values))
+        padded = f",{text},"
+        if ",-0.000000," in padded or ",-0.00," in padded:  # a tiny negative printed as −0
+            rows.append([csv_number(v, c[2]) for v, c in zip(values, columns)])
+        else:
+            rows.append([text])
+    return rows
+
+
+def _check_record(name: str, record: str) -> None:
+    lines = record.split("\n")
+    if lines[-1] != "" or len(lines) != 5:
+        raise ValueError(f"{name}: record rendered as {len(lines) - 1} lines, not 4")
+    for i, line in enumerate(lines[:4], start=1):
+        if len(line) != 80 or line[79] != str(i):
+            raise ValueError(f"{name}: record line {i} is {len(line)} columns, not 80 ending in {i}: {line!r}")
+
+
+# --------------------------------------------------------------------------
+# The database
+# --------------------------------------------------------------------------
+
+
+def assemble(fragments: list[dict[str, str]], settings) -> dict[str, bytes]:
+    """The whole database from species fragments: output-relative path → bytes.
+
+    Species are written in name order whatever the order of ``fragments``;
+    only string joins and the file headers (from ``settings``: ranges,
+    pressure, tool version) happen here.
+    """
+    from pipeline import __version__
+    from pipeline.writers.formats import render
+
+    frags = sorted(fragments, key=lambda f: f["name"])
+    names = [f["name"] for f in frags]
+    if len(set(names)) != len(names):
+        dup = sorted({n for n in names if names.count(n) > 1})
+        raise ValueError(f"species named more than once: {', '.join(dup)}")
+    tmid = settings.tmid if settings.tmid != "auto" else 1000.0  # default Tmid of the ranges line (common practice)
+    common = dict(version=__version__, pressure_label=_PRESSURE_LABEL[settings.pressure],
+                  pressure_pa=float(settings.pressure_pa))
+    files: dict[str, bytes] = {}
+    files["thermo.dat"] = render(
+        "thermo.dat.j2", title="fixed-column seven-coefficient records (NASA TM-4513 layout)",
+        tlow=settings.tmin, tmid=tmid, thigh=settings.tmax, records="".join(f["record"] for f in frags),
+        **common,
+    ).encode("utf-8")
+    files["thermo.yaml"] = render(
+        "thermo.yaml.j2", format_version=FORMAT_VERSION, units=_UNITS, entries="".join(f["yaml"] for f in frags),
+        **common,
+    ).encode("utf-8")
+    files["REPORT.md"] = render(
+        "REPORT.md.j2", count=len(frags), rows="".join(f["report_row"] for f in frags).rstrip("\n"),
+        notes="".join(f.get("report_note", "") for f in frags).rstrip("\n"),
+        g_limit=settings.g_uncertainty_warning, grid_step=settings.grid_step, table_step=settings.table_step,
+        tmin=settings.tmin, tmax=settings.tmax,
+        tmid_policy="searched per species" if settings.tmid == "auto" else f"{float(settings.tmid):g} K unless a species file sets it",
+        **common,
+    ).encode("utf-8")
+    for f in frags:
+        files[table_path(f["name"])] = f["table_csv"].encode("utf-8")
+    return files

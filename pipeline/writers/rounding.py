@@ -1,0 +1,363 @@
+"""Rounding-aware printing: the coefficients exactly as the fixed-column file holds them.
+
+A fixed-column record prints each coefficient with nine significant digits
+(E15.8) and the temperatures with three decimals (F10.3, F8.3).  Rounding the
+coefficients of a constrained fit independently would break what the fit
+guaranteed — H°(298.15 K) = ΔfH°298, S°(298.15 K) = S°298, and Cp, H, S
+continuous at Tmid.  :func:`printed_fit` rounds and then restores those
+properties *as printed*:
+
+1. temperatures are rounded to the printed decimals;
+2. a1 … a5 of both ranges are rounded to nine significant digits;
+3. in the range that holds 298.15 K, the integration constants are re-derived
+   from the rounded a1 … a5 and rounded,
+
+       a6 = T·(H/RT − h(T)),   a7 = S/R − s(T)   at T = 298.15 K,
+
+   with h, s the polynomial parts of H/RT and S/R (the a6/T and a7 terms left
+   out);
+4. in the other range a1 is shifted so that Cp/R equals the first range's at
+   Tmid, then a6, a7 are re-derived so that H/RT and S/R equal it there;
+5. the rounding of a6, a7 and a1 alone leaves errors above the bars for many
+   species (a6 ≈ −1000 prints with a step of 1e-5, i.e. 3e-8 in H/RT at
+   298 K), so the last digits of a1 … a5 are nudged — one, two or three of them
+   by a few units — and steps 3–4 repeated, trying the nudges in order of the
+   Cp/R change they cause over the range; the first that meets every bar as
+   printed is kept.  That change is far below the fit error (≲ 1e-7 in Cp/R).
+
+All conditions are measured the way solvers check them: relative to
+max(|value|, 1) of the dimensionless quantity (Cp/R, H/RT, S/R).  The bars are
+those of the writers issue: 1e-9 for H and S (at 298.15 K and at Tmid) and
+1e-8 for Cp at Tmid; the code aims at :data:`MARGIN` of them.
+
+Reference for the polynomial form: McBride, Gordon & Reno, NASA TM-4513 (1993).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import functools
+import itertools
+import math
+
+import numpy as np
+
+from pipeline.nasa7 import Nasa7Fit, cp_r, h_rt, s_r
+from pipeline.thermo import T_REF
+
+#: relative bars as printed (normalised by max(|value|, 1))
+H_S_BAR = 1e-9
+CP_BAR = 1e-8
+#: fraction of the bars aimed at (leaves room for a reader's summation order)
+MARGIN = 0.9
+#: largest change of Cp/R over a range that a nudge may cause, relative to Cp/R
+DISTURBANCE = 1e-6
+SIGNIFICANT = 9  # E15.8: one digit before the point, eight after
+
+
+def round_sig(x: float) -> float:
+    """``x`` as an E15.8 field prints it, read back as a float.
+
+    Negative zero becomes zero; magnitudes below 1e-99 (which would need a
+    three-digit exponent) print as zero.
+
+    >>> round_sig(3.1415926535)
+    3.14159265
+    >>> round_sig(-1.0208999e-3 - 1e-14)
+    -0.0010208999
+    """
+    x = float(x)
+    if not math.isfinite(x):
+        raise ValueError(f"cannot print {x!r} as a coefficient")
+    if abs(x) < 1e-99:
+        return 0.0
+    if abs(x) >= 1e100:
+        raise ValueError(f"{x!r} does not fit an E15.8 field")
+    return float(f"{x:.{SIGNIFICANT - 1}E}") + 0.0
+
+
+def round_temperature(t: float) -> float:
+    """A temperature [K] as F10.3/F8.3 prints it.
+
+    >>> round_temperature(1234.56789)
+    1234.568
+    """
+    return float(f"{float(t):.3f}")
+
+
+def last_digit(x: float) -> float:
+    """The value of one unit in the last printed digit of ``x`` (0 for zero).
+
+    >>> last_digit(3.5)
+    1e-08
+    >>> last_digit(-2.5e-3)
+    1e-11
+    """
+    if x == 0.0:
+        return 0.0
+    exponent = int(f"{x:.{SIGNIFICANT - 1}E}".split("E")[1])
+    return 10.0 ** (exponent - (SIGNIFICANT - 1))
+
+
+_EVAL = {"cp": cp_r, "h": h_rt, "s": s_r}
+_BAR = {"cp": CP_BAR, "h": H_S_BAR, "s": H_S_BAR}
+
+
+@functools.lru_cache(maxsize=64)
+def _poly_list(T: float) -> dict:
+    return {
+        "cp": tuple(T**j for j in range(5)),
+        "h": tuple(T**j / (j + 1) for j in range(5)),
+        "s": (math.log(T),) + tuple(T**j / j for j in range(1, 5)),
+    }
+
+
+def _poly(T: float) -> dict:
+    """Row vectors v with v·(a1 … a5) = the polynomial parts of Cp/R, H/RT, S/R at T."""
+    return {q: np.array(vec) for q, vec in _poly_list(T).items()}
+
+
+def _dot(u, w) -> float:
+    return sum(p * q for p, q in zip(u, w))
+
+
+def _close(a5, T: float, targets: dict) -> tuple:
+    """Printed a1 … a7 from printed a1 … a5: a1 re-fixed for Cp (if Cp is a
+    target), a6 and a7 re-derived for H and S at T, all rounded."""
+    a5 = [float(x) for x in a5]
+    v = _poly_list(T)
+    if "cp" in targets:
+        a5[0] = round_sig(a5[0] + targets["cp"] - _dot(v["cp"], a5))
+    a6 = round_sig((targets["h"] - _dot(v["h"], a5)) * T)
+    a7 = round_sig(targets["s"] - _dot(v["s"], a5))
+    return tuple(a5) + (a6, a7)
+
+
+def _meets(a: tuple, T: float, targets: dict) -> bool:
+    return all(
+        abs(float(_EVAL[q](a, T)) - t) <= MARGIN * _BAR[q] * max(abs(t), 1.0) for q, t in targets.items()
+    )
+
+
+def _round_sig_array(x: np.ndarray) -> np.ndarray:
+    """Vectorised, approximate :func:`round_sig` (for screening candidates only)."""
+    ax = np.abs(x)
+    e = np.floor(np.log10(np.where(ax > 0, ax, 1.0)))
+    scale = 10.0 ** (SIGNIFICANT - 1 - e)
+    return np.where(ax > 0, np.round(x * scale) / scale, 0.0)
+
+
+@functools.lru_cache(maxsize=None)
+def _moves(n: int, reach: int) -> np.ndarray:
+    """Integer last-digit moves of exactly ``n`` of the five coefficients a1 … a5,
+    each by 1 … ``reach`` units either way."""
+    units = [k for k in range(-reach, reach + 1) if k]
+    rows = []
+    for which in itertools.combinations(range(5), n):
+        for ks in itertools.product(units, repeat=n):
+            row = [0] * 5
+            for j, k in zip(which, ks):
+                row[j] = k
+            rows.append(row)
+    return np.array(rows, dtype=float)
+
+
+def _single_moves(steps: np.ndarray, v: dict, cp_fixed: bool, cells: dict, windows: dict,
+                  sweep: tuple[float, float]) -> np.ndarray:
+    """Moves of one coefficient that sweep the last-digit cell of a6 (in H/RT)
+    and of a7 (in S/R) between ``sweep[0]`` and ``sweep[1]`` times, in strides
+    that cannot jump over the tolerance window.
+
+    With ``cp_fixed`` a1 follows every move so that Cp/R at T is unchanged,
+    so a move of a_j changes H/RT and S/R by the combination of both.
+    """
+    blocks = []
+    for j in range(5):
+        if steps[j] == 0.0:
+            continue
+        ks = []
+        for q in cells:
+            effect = v[q][j] - (v[q][0] * v["cp"][j] if cp_fixed else 0.0)
+            effect = abs(effect) * steps[j]  # change of the quantity per unit of a_j
+            if effect == 0.0:
+                continue
+            stride = max(1, int(0.5 * windows[q] / effect))
+            lo, hi = (math.ceil(c * cells[q] / (stride * effect)) for c in sweep)
+            if sweep[0] == 0:
+                lo, hi = 0, max(hi, 24)
+            ks.append(stride * np.arange(lo + 1, min(hi, 2000) + 1))
+        k = np.unique(np.concatenate(ks)) if ks else np.zeros(0)
+        block = np.zeros((2 * len(k), 5))
+        block[: len(k), j] = k
+        block[len(k):, j] = -k
+        blocks.append(block)
+    return np.concatenate(blocks) if blocks else np.zeros((0, 5))
+
+
+#: sweeps (in cells of a6/a7) of single moves, then moves of two and three coefficients
+_STAGES = (("single", (0, 1)), ("single", (1, 4)), ("single", (4, 16)), ("multi", (2, 12)), ("multi", (3, 5)))
+
+
+def _nudged(base: list[float], T: float, targets: dict, span: tuple[float, float]) -> tuple | None:
+    """The least-disturbing last-digit nudge of ``base`` that meets ``targets``."""
+    steps = np.array([last_digit(x) for x in base])
+    if "cp" in targets:
+        steps[0] = 0.0  # a1 is re-fixed for Cp anyway
+    tmax = max(abs(span[0]), abs(span[1]))
+    reach = steps * np.array([tmax**j for j in range(5)])  # Cp/R change per unit on the span
+    v = _poly(T)
+    b = np.array(base)
+    first = _close(base, T, targets)
+    cells = {"h": last_digit(first[5]) / T, "s": last_digit(first[6])}
+    windows = {q: MARGIN * _BAR[q] * max(abs(targets[q]), 1.0) for q in ("h", "s")}
+    for kind, arg in _STAGES:
+        if kind == "single":
+            moves = _single_moves(steps, v, "cp" in targets, cells, windows, arg)
+        else:
+            moves = _moves(*arg)
+            moves = moves[np.all((moves == 0) | (steps > 0), axis=1)]  # zeros stay zero
+        if not len(moves):
+            continue
+        order = np.argsort(np.abs(moves) @ reach, kind="stable")
+        A = b + moves[order] * steps
+        if "cp" in targets:
+            A[:, 0] = _round_sig_array(A[:, 0] + targets["cp"] - A @ v["cp"])
+        a6 = _round_sig_array((targets["h"] - A @ v["h"]) * T)
+        a7 = _round_sig_array(targets["s"] - A @ v["s"])
+        good = np.ones(len(A), dtype=bool)
+        for q, t in targets.items():
+            value = A @ v[q] + (a6 / T if q == "h" else a7 if q == "s" else 0.0)
+            good &= np.abs(value - t) <= 0.9 * MARGIN * _BAR[q] * max(abs(t), 1.0)
+        for i in np.flatnonzero(good)[:8]:  # confirm with the exact printed numbers
+            a = _close([round_sig(x) for x in A[i]], T, targets)
+            if _meets(a, T, targets):
+                return a
+    return None
+
+
+def _state(a5: list[float], T: float, targets: dict, v: dict, refix: bool):
+    """Printed a1 … a7 (a1 re-fixed for Cp if ``refix``), exact a6, a7, and the
+    signed errors of the targets in units of their tolerance windows."""
+    a5 = list(a5)
+    if refix:
+        a5[0] = round_sig(a5[0] + targets["cp"] - _dot(v["cp"], a5))
+    x6 = (targets["h"] - _dot(v["h"], a5)) * T
+    x7 = targets["s"] - _dot(v["s"], a5)
+    a = (*a5, round_sig(x6), round_sig(x7))
+    err = {}
+    for q, t in targets.items():
+        value = _dot(v[q], a5) + (a[5] / T if q == "h" else a[6] if q == "s" else 0.0)
+        err[q] = (value - t) / (MARGIN * _BAR[q] * max(abs(t), 1.0))
+    return a, x6, x7, err
+
+
+def _aimed(base: list[float], T: float, targets: dict, span) -> tuple | None:
+    """Nudges aimed at the printed grid of a6 (and of a7), tried in pure Python.
+
+    A move of k last-digit units of a_j shifts the exact a6 by k·e_j (linear in
+    k; in the range that must join at Tmid, a1 follows so that Cp/R stays
+    equal).  k = (g·m − a6)/e_j, rounded, lands a6 on the printed grid point
+    g·m; a knob with e_j below the tolerance window hits it to within the
+    window.  Rounding a1 after the move leaves a small miss, removed by a
+    second move of a fine coefficient with a1 held.  Candidates are tried in
+    order of grid distance and Cp/R change over ``span``; every one is checked
+    exactly as printed.
+    """
+    cp_fixed = "cp" in targets
+    v = _poly_list(T)
+    steps = [0.0 if (cp_fixed and j == 0) else last_digit(x) for j, x in enumerate(base)]
+    tmax = max(abs(span[0]), abs(span[1]))
+    reach = [steps[j] * tmax**j for j in range(5)]
+    limit = DISTURBANCE * max(abs(_dot(v["cp"], base)), 1.0)  # largest Cp/R change allowed
+    knobs = [j for j in range(5) if steps[j]]
+    if not knobs:
+        return None
+    a, x6, x7, _ = _state(base, T, targets, v, cp_fixed)
+    g6, g7 = last_digit(a[5]) or 1.0, last_digit(a[6]) or 1.0
+
+    def effect(q, j, follow):  # change of the exact a6 (q='h') or a7 per unit of a_j
+        d = v[q][j] - (v[q][0] * v["cp"][j] if follow else 0.0)
+        return -d * steps[j] * (T if q == "h" else 1.0)
+
+    def moved(a5, j, k):
+        out = list(a5)
+        out[j] = round_sig(a5[j] + k * steps[j])
+        return out
+
+    fine = sorted(knobs, key=lambda j: abs(effect("h", j, False)) + abs(effect("s", j, False)))
+    primaries = []
+    for off in (0, 1, -1, 2, -2):
+        for q, x, g in (("h", x6, g6), ("s", x7, g7)):
+            want = (round(x / g) + off) * g - x
+            for j in knobs:
+                e = effect(q, j, cp_fixed)
+                if e:
+                    k = round(want / e)
+                    if k and abs(k) * reach[j] <= limit:
+                        primaries.append((abs(off), abs(k) * reach[j], j, k))
+    primaries.sort()
+    for _, _, j, k in primaries[:24]:
+        trial = moved(base, j, k)
+        a, x6t, x7t, err = _state(trial, T, targets, v, cp_fixed)
+        if all(abs(e) <= 1.0 for e in err.values()):
+            return a if _meets(a, T, targets) else None
+        held = list(a[:5])  # a1 as re-fixed; correct the small miss with a1 held
+        for j2 in fine:
+            for q, x, g in (("h", x6t, g6), ("s", x7t, g7)):
+                e2 = effect(q, j2, False)
+                if not e2:
+                    continue
+                k2 = round((round(x / g) * g - x) / e2)
+                if not k2 or abs(k2) * reach[j2] > limit:
+                    continue
+                a2, _, _, err2 = _state(moved(held, j2, k2), T, targets, v, False)
+                if all(abs(e) <= 1.0 for e in err2.values()) and _meets(a2, T, targets):
+                    return a2
+    return None
+
+
+def _balanced(src, T: float, targets: dict, span, what: str, name: str) -> tuple:
+    base = [round_sig(x) for x in src[:5]]
+    a = _close(base, T, targets)
+    if _meets(a, T, targets):
+        return a
+    a = _aimed(base, T, targets, span) or _nudged(base, T, targets, span)
+    if a is None:
+        raise ValueError(f"{name}: no printed coefficients meet {what} (nudges of up to three last digits tried)")
+    return a
+
+
+def printed_fit(fit: Nasa7Fit) -> Nasa7Fit:
+    """The fit with the numbers a fixed-column record prints, re-balanced as printed.
+
+    The targets are the fit's own values: H/RT and S/R at 298.15 K (which a
+    constrained fit makes ΔfH°298/RT and S°298/R), and continuity of Cp/R,
+    H/RT, S/R at the printed Tmid.  Every coefficient of the result is exactly
+    the float its E15.8 field reads back.  See the module docstring for the
+    method.  Raises ``ValueError`` if no nudge meets the bars (not seen for a
+    realistic fit).
+
+    Examples
+    --------
+    >>> f = Nasa7Fit("AR", (("Ar", 1),), 200.0, 1000.0, 6000.0,
+    ...              (2.5, 0, 0, 0, 0, -745.375, 4.379674166),
+    ...              (2.5, 0, 0, 0, 0, -745.375, 4.379674166))
+    >>> p = printed_fit(f)
+    >>> p.low[6], max(p.continuity().values())
+    (4.37967417, 0.0)
+    """
+    tlow, tmid, thigh = (round_temperature(t) for t in (fit.tlow, fit.tmid, fit.thigh))
+    two_ranges = tlow < tmid < thigh
+    ref_is_low = (not two_ranges) or T_REF <= tmid
+    ref_src, other_src = (fit.low, fit.high) if ref_is_low else (fit.high, fit.low)
+    targets = {"h": float(h_rt(ref_src, T_REF)), "s": float(s_r(ref_src, T_REF))}
+    span = (tlow, tmid) if ref_is_low else (tmid, thigh)
+    ref = _balanced(ref_src, T_REF, targets, span, "H and S at 298.15 K", fit.name)
+    if two_ranges:
+        targets = {q: float(_EVAL[q](ref, tmid)) for q in ("cp", "h", "s")}
+        span = (tmid, thigh) if ref_is_low else (tlow, tmid)
+        other = _balanced(other_src, tmid, targets, span, f"continuity at Tmid = {tmid} K", fit.name)
+    else:
+        other = ref
+    low, high = (ref, other) if ref_is_low else (other, ref)
+    return dataclasses.replace(fit, tlow=tlow, tmid=tmid, thigh=thigh, low=low, high=high)
