@@ -15,7 +15,14 @@ from typing import Any
 from scipy import constants as C
 
 from pipeline import units
-from pipeline.geometry import ISOTOPE, LINEAR_TOLERANCE, is_linear, principal_moments, rotational_constant
+from pipeline.geometry import (
+    ISOTOPE,
+    LINEAR_TOLERANCE,
+    is_linear,
+    principal_moments,
+    rotational_constant,
+    torsion_moment,
+)
 from pipeline.species import Diatomic, Torsion, _show
 
 #: keys of a ``diatomic:`` block → Diatomic field (all wavenumbers)
@@ -26,7 +33,7 @@ _DIATOMIC_REQUIRED = ("omega_e", "omega_e_x_e", "B_e")
 STATE_SYMMETRIES = ("g+", "g-", "u+", "u-")
 
 _TORSION_KEYS = {"replaces", "barrier", "barrier_unit", "periodicity", "symmetry", "moment", "moment_unit", "fourier",
-                 "barrier_uncertainty"}
+                 "barrier_uncertainty", "top", "axis"}
 _BARRIER_UNITS = ("kJ/mol", "kcal/mol", "J/mol", "cm-1")
 
 
@@ -122,11 +129,14 @@ def _read_state(ck, m: dict, path: str, f: float, homonuclear: bool, formula, sp
     )
 
 
-def read_torsions(ck, raw: Any) -> tuple[Torsion, ...]:
+def read_torsions(ck, raw: Any, rotor: Any = None) -> tuple[Torsion, ...]:
     """``torsions:`` (a list of mappings) → tuple of :class:`Torsion` (SI units).
 
     ``replaces`` is stored as given [m^-1, unscaled]; the loader's mode
-    check ties it to one listed frequency.
+    check ties it to one listed frequency.  The reduced moment is either
+    ``moment`` (``moment_unit``, default amu*angstrom^2) or, with a ``rotor:
+    geometry:``, ``top`` (0-based indices of the rotating atoms) and ``axis``
+    (the two atoms of the bond): I^(2,1) of :func:`pipeline.geometry.torsion_moment`.
     """
     if not isinstance(raw, list) or not raw:
         ck.error("torsions", f"{_show(raw)} is not a list of torsion mappings (- replaces: ..., barrier: ...)")
@@ -137,16 +147,25 @@ def read_torsions(ck, raw: Any) -> tuple[Torsion, ...]:
         m = ck.mapping(item, path)
         if m is None:
             continue
-        ck.keys(m, _TORSION_KEYS, path, required=("replaces", "barrier", "periodicity", "symmetry", "moment"))
-        if any(k not in m for k in ("replaces", "barrier", "periodicity", "symmetry", "moment")):
+        ck.keys(m, _TORSION_KEYS, path, required=("replaces", "barrier", "periodicity", "symmetry"))
+        if any(k not in m for k in ("replaces", "barrier", "periodicity", "symmetry")):
             continue
         replaces = ck.number(m["replaces"], f"{path}.replaces", positive=True)
         barrier = ck.number(m["barrier"], f"{path}.barrier", nonnegative=True)
         bunit = ck.unit(m.get("barrier_unit"), f"{path}.barrier_unit", _BARRIER_UNITS, "kJ/mol")
         n = ck.integer(m["periodicity"], f"{path}.periodicity", minimum=1)
         sigma = ck.integer(m["symmetry"], f"{path}.symmetry", minimum=1)
-        moment = ck.number(m["moment"], f"{path}.moment", positive=True)
         munit = ck.unit(m.get("moment_unit"), f"{path}.moment_unit", units.MOMENT, "amu*angstrom^2")
+        if "moment" in m:
+            moment = ck.number(m["moment"], f"{path}.moment", positive=True)
+            if "top" in m or "axis" in m:
+                ck.error(path, "give either 'moment' or 'top' and 'axis' (from rotor.geometry), not both")
+        elif "top" in m and "axis" in m:
+            moment = _moment_from_geometry(ck, m, path, rotor)
+            munit = "amu*angstrom^2"
+        else:
+            ck.error(f"{path}.moment", "missing required key (or give 'top' and 'axis' with a rotor.geometry)")
+            continue
         fourier: list[float] | None = []
         if m.get("fourier") is not None:
             fourier = ck.numbers(m["fourier"], f"{path}.fourier")
@@ -189,32 +208,14 @@ def read_geometry(ck, mapping: dict, shape: str | None, formula=None) -> tuple[f
     constant for a linear molecule, three (A ≥ B ≥ C) otherwise.
     """
     unit = mapping.get("unit", "angstrom")
-    scale = {"angstrom": 1.0, "bohr": C.physical_constants["Bohr radius"][0] * 1e10}
+    scale = _LENGTH
     if unit not in scale:
         ck.error("rotor.unit", f"{_show(unit)} is not a length unit for a geometry (expected one of: angstrom, bohr)")
         return None
-    rows = mapping["geometry"]
-    if not isinstance(rows, list) or len(rows) < 2:
-        ck.error("rotor.geometry", f"{_show(rows)} is not a list of at least two [symbol, x, y, z] rows")
+    atoms = _geometry_atoms(ck, mapping["geometry"], scale[unit])
+    if atoms is None:
         return None
-    masses, coords, counts = [], [], {}
-    for i, row in enumerate(rows):
-        path = f"rotor.geometry[{i}]"
-        if not isinstance(row, list) or len(row) != 4 or not isinstance(row[0], str):
-            ck.error(path, f"{_show(row)} is not a [symbol, x, y, z] row")
-            continue
-        if row[0] not in ISOTOPE:
-            ck.error(f"{path}[0]", f"{row[0]!r} has no isotope mass in the table (known: {', '.join(ISOTOPE)})")
-            continue
-        xyz = [ck.number(v, f"{path}[{k + 1}]") for k, v in enumerate(row[1:])]
-        if None in xyz:
-            continue
-        masses.append(ISOTOPE[row[0]][0])
-        coords.append([v * scale[unit] for v in xyz])
-        el = "H" if row[0] == "D" else row[0]
-        counts[el] = counts.get(el, 0) + 1
-    if ck.failed:
-        return None
+    masses, coords, counts = atoms
     if formula is not None and counts != dict(formula):
         have = ", ".join(f"{k}: {v}" for k, v in sorted(counts.items()))
         ck.error("rotor.geometry", f"the atoms ({have}) do not match the formula {dict(formula)}")
@@ -234,3 +235,71 @@ def read_geometry(ck, mapping: dict, shape: str | None, formula=None) -> tuple[f
         return None
     used = moments[2:] if linear else moments
     return tuple(float(b) for b in sorted(rotational_constant(used), reverse=True))
+
+
+_LENGTH = {"angstrom": 1.0, "bohr": C.physical_constants["Bohr radius"][0] * 1e10}
+
+
+def _geometry_atoms(ck, rows: Any, scale: float):
+    """Validated geometry rows → (masses [u], coordinates [Å], element counts) or None."""
+    if not isinstance(rows, list) or len(rows) < 2:
+        ck.error("rotor.geometry", f"{_show(rows)} is not a list of at least two [symbol, x, y, z] rows")
+        return None
+    masses, coords, counts = [], [], {}
+    for i, row in enumerate(rows):
+        path = f"rotor.geometry[{i}]"
+        if not isinstance(row, list) or len(row) != 4 or not isinstance(row[0], str):
+            ck.error(path, f"{_show(row)} is not a [symbol, x, y, z] row")
+            continue
+        if row[0] not in ISOTOPE:
+            ck.error(f"{path}[0]", f"{row[0]!r} has no isotope mass in the table (known: {', '.join(ISOTOPE)})")
+            continue
+        xyz = [ck.number(v, f"{path}[{k + 1}]") for k, v in enumerate(row[1:])]
+        if None in xyz:
+            continue
+        masses.append(ISOTOPE[row[0]][0])
+        coords.append([v * scale for v in xyz])
+        el = "H" if row[0] == "D" else row[0]
+        counts[el] = counts.get(el, 0) + 1
+    if ck.failed:
+        return None
+    return masses, coords, counts
+
+
+def _moment_from_geometry(ck, m: dict, path: str, rotor: Any) -> float | None:
+    """I^(2,1) [u Å²] of a torsion from ``top``/``axis`` and the rotor geometry."""
+    if not isinstance(rotor, dict) or "geometry" not in rotor:
+        ck.error(f"{path}.top", "needs a rotor.geometry to compute the reduced moment (or give 'moment')")
+        return None
+    # the geometry's own errors are reported by read_geometry; read it quietly here
+    atoms = _geometry_atoms(type(ck)(ck.file), rotor["geometry"], _LENGTH.get(rotor.get("unit", "angstrom"), 1.0))
+    if atoms is None:
+        return None
+    masses, coords, _ = atoms
+    n = len(masses)
+    top, axis = m["top"], m["axis"]
+    ok = True
+    for key, value, size in (("top", top, None), ("axis", axis, 2)):
+        good = (
+            isinstance(value, list)
+            and all(isinstance(j, int) and not isinstance(j, bool) and 0 <= j < n for j in value)
+            and (size is None or len(value) == size)
+            and len(set(value)) == len(value)
+        )
+        if not good:
+            what = "two distinct atom indices" if size else "a list of distinct atom indices"
+            ck.error(f"{path}.{key}", f"{_show(value)} is not {what} (0 to {n - 1}, rows of rotor.geometry)")
+            ok = False
+    if not ok:
+        return None
+    if not (axis[0] in top) ^ (axis[1] in top):
+        ck.error(f"{path}.axis", f"{axis!r}: exactly one of the two bond atoms must belong to the top {top!r}")
+        return None
+    if len(top) >= n - 1:
+        ck.error(f"{path}.top", f"{top!r} leaves no frame to turn against (the rest of the molecule)")
+        return None
+    moment = torsion_moment(masses, coords, top, axis)
+    if not moment > 0:
+        ck.error(f"{path}.top", f"{top!r} lies on the axis {axis!r}: its moment is zero")
+        return None
+    return moment

@@ -113,3 +113,54 @@ def rotational_constant(moment_u_a2):
     Reference: G. Herzberg, *Spectra of Diatomic Molecules* (1950), eq. III,12.
     """
     return C.h / (8 * math.pi**2 * C.c * np.asarray(moment_u_a2, dtype=float) * _U_A2)
+
+
+def torsion_moment(masses, coords, top, axis) -> float:
+    """Reduced moment I^(2,1) of a torsion about the bond that carries it.
+
+    I_red = I_top I_rest / (I_top + I_rest), where I_top and I_rest are the
+    moments of the rotating top and of the rest of the molecule about the line
+    through the two ``axis`` atoms (the "(2,1)" approximation of East & Radom,
+    which ignores the coupling to overall rotation).
+
+    Parameters
+    ----------
+    masses : array (n,)
+        Atomic masses [u].
+    coords : array (n, 3)
+        Cartesian coordinates [Å].
+    top : sequence of int
+        Indices of the atoms of the rotating top (may include its axis atom).
+    axis : (int, int)
+        Indices of the two atoms of the bond.
+
+    Returns
+    -------
+    I_red [u Å²].
+
+    Examples
+    --------
+    Two equal CH3 tops (H 1.0199 Å off the axis) give half of one top's 3 m_H r²:
+
+    >>> r = 1.0199; h = 1.00782503223
+    >>> xyz = [[0, 0, 0.7655], [0, 0, -0.7655]] + [
+    ...     [r * math.cos(a), r * math.sin(a), s * 1.1611] for s, a0 in ((1, 0), (-1, math.pi / 3))
+    ...     for a in (a0, a0 + 2 * math.pi / 3, a0 + 4 * math.pi / 3)]
+    >>> round(torsion_moment([12.0, 12.0] + [h] * 6, xyz, top=[0, 2, 3, 4], axis=(0, 1)), 4)
+    1.5725
+
+    Reference: A. L. L. East and L. Radom, J. Chem. Phys. 106, 6655 (1997);
+    K. S. Pitzer, J. Chem. Phys. 14, 239 (1946).
+    """
+    m = np.asarray(masses, dtype=float)
+    r = np.asarray(coords, dtype=float).reshape(-1, 3)
+    a, b = axis
+    u = r[b] - r[a]
+    u = u / np.linalg.norm(u)
+    d = r - r[a]
+    perp2 = (d * d).sum(axis=1) - (d @ u) ** 2  # squared distance from the bond line
+    in_top = np.zeros(m.size, dtype=bool)
+    in_top[list(top)] = True
+    i_top = float((m * perp2)[in_top].sum())
+    i_rest = float((m * perp2)[~in_top].sum())
+    return i_top * i_rest / (i_top + i_rest)

@@ -686,7 +686,7 @@ def _build(ck: _Checker, doc: dict, digest: str) -> Species | None:
     if doc.get("torsions") is not None:
         from pipeline.blocks import read_torsions
 
-        torsions = read_torsions(ck, doc["torsions"])
+        torsions = read_torsions(ck, doc["torsions"], doc.get("rotor"))
         if shape == "atom" or diatomic is not None or natoms == 2:
             ck.error("torsions", "only a polyatomic molecule has internal rotors; remove this block")
 

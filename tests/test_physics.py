@@ -429,3 +429,61 @@ def test_torsion_negative_barrier():
 def test_torsion_in_a_diatomic():
     extra = "torsions: [{replaces: 2330, barrier: 1, periodicity: 1, symmetry: 1, moment: 1}]\n"
     _fails(_N2 + extra, r"torsions: only a polyatomic molecule has internal rotors")
+
+
+# ---------------------------------------------------------------------------
+# A torsion whose reduced moment comes from the geometry (ethane, staggered)
+# ---------------------------------------------------------------------------
+
+# r_CC = 1.531 Å, r_CH = 1.094 Å, ∠HCC = 111.2° (NIST CCCBDB experimental geometry, from memory)
+_C2H6_GEOMETRY = """name: C2H6
+formula: {C: 2, H: 6}
+shape: nonlinear
+symmetry: 6
+rotor:
+  geometry:
+    - [C, 0.0, 0.0, 0.7655]
+    - [C, 0.0, 0.0, -0.7655]
+    - [H, 1.0199, 0.0, 1.1611]
+    - [H, -0.50995, 0.88326, 1.1611]
+    - [H, -0.50995, -0.88326, 1.1611]
+    - [H, 0.50995, 0.88326, -1.1611]
+    - [H, -1.0199, 0.0, -1.1611]
+    - [H, 0.50995, -0.88326, -1.1611]
+vibrations:
+  frequencies: [2954, 1388, 995, 289, 2896, 1379, 2969, 2969, 1468, 1468, 822, 822,
+                2985, 2985, 1469, 1469, 1190, 1190]
+torsions:
+  - {replaces: 289, barrier: 12.13, periodicity: 3, symmetry: 3, top: [0, 2, 3, 4], axis: [0, 1]}
+formation: {enthalpy: -84.0}
+sources: ["test"]
+"""
+
+
+def test_torsion_moment_from_geometry():
+    """I^(2,1) of two equal CH3 tops = ½ · 3 m_H r⊥², r⊥ = r_CH sin(∠HCC) (East & Radom 1997)."""
+    sp, _ = parse_species(_C2H6_GEOMETRY.encode(), "C2H6.yaml")
+    r_perp = 1.0199  # the input rounds the other H positions to 1e-5 Å
+    expect = 0.5 * 3 * 1.00782503223 * r_perp**2  # 1H mass, AME2020 (from memory)
+    assert sp.torsions[0].moment / U_A2 == pytest.approx(expect, rel=2e-5)
+
+
+def test_geometry_ethane_reaches_nasa_s298():
+    """Ethane from geometry + hindered CH3 rotor: S298 within 0.3 J/mol/K of GRI-Mech 3.0 thermo."""
+    sp, _ = parse_species(_C2H6_GEOMETRY.encode(), "C2H6.yaml")
+    assert thermo_table(sp, [298.15]).s298 == pytest.approx(ref_s("gri30.yaml", "C2H6", 298.15), abs=0.3)
+
+
+def test_torsion_top_needs_geometry():
+    _fails(_C2H6.replace("    moment: 1.573", "    top: [0, 2, 3, 4]\n    axis: [0, 1]"),
+           r"torsions\[0\].top: needs a rotor.geometry")
+
+
+def test_torsion_axis_must_cross_the_top():
+    _fails(_C2H6_GEOMETRY.replace("axis: [0, 1]", "axis: [2, 3]"),
+           r"torsions\[0\].axis: \[2, 3\]: exactly one of the two bond atoms must belong to the top")
+
+
+def test_torsion_top_index_range():
+    _fails(_C2H6_GEOMETRY.replace("top: [0, 2, 3, 4]", "top: [0, 2, 3, 9]"),
+           r"torsions\[0\].top: \[0, 2, 3, 9\] is not a list of distinct atom indices \(0 to 7")
