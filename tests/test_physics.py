@@ -388,47 +388,38 @@ def _fails(text: str, pattern: str) -> None:
         parse_species(text.encode(), "X.yaml")
 
 
-def test_homonuclear_needs_state_symmetry():
-    _fails(_N2.replace("  state_symmetry: g+", ""), r"diatomic.state_symmetry: missing; a homonuclear")
+_CN = (SPECIES_DIR / "CN.yaml").read_text()
+_BAD_BLOCKS = {
+    "homonuclear needs state_symmetry": (
+        _N2.replace("  state_symmetry: g+", ""), r"diatomic.state_symmetry: missing; a homonuclear"),
+    "state_symmetry value": (
+        _N2.replace("state_symmetry: g+", "state_symmetry: sigma"), r"diatomic.state_symmetry: 'sigma' is not one of"),
+    "unknown diatomic key": (
+        _N2.replace("omega_e_x_e:", "omega_ex_e:"), r"diatomic.omega_ex_e: unknown key — did you mean 'omega_e_x_e'"),
+    "diatomic with rotor": (
+        _N2 + "rotor: {constants: [1.99]}\n", r"rotor: give either a 'diatomic' block or rotor/vibrations"),
+    "homonuclear symmetry number": (
+        _N2.replace("symmetry: 2", "symmetry: 1"), r"symmetry: 1 but a homonuclear diatomic has symmetry number 2"),
+    "excited state without energy": (
+        _CN.replace("    - energy: 9245.28         # A 2Πi, Te\n      degeneracy: 4", "    - degeneracy: 4"),
+        r"diatomic.excited\[0\].energy: missing required key"),
+    "torsion names no listed mode": (
+        _C2H6.replace("replaces: 289", "replaces: 300"), r"torsions\[0\].replaces: 300 cm-1 matches none"),
+    "torsion symmetry divides periodicity": (
+        _C2H6.replace("    symmetry: 3\n", "    symmetry: 2\n"),
+        r"torsions\[0\].symmetry: 2 does not divide the periodicity 3"),
+    "negative barrier": (
+        _C2H6.replace("barrier: 12.13", "barrier: -1"), r"torsions\[0\].barrier: -1 must not be negative"),
+    "torsion in a diatomic": (
+        _N2 + "torsions: [{replaces: 2330, barrier: 1, periodicity: 1, symmetry: 1, moment: 1}]\n",
+        r"torsions: only a polyatomic molecule has internal rotors"),
+}
 
 
-def test_state_symmetry_value():
-    _fails(_N2.replace("state_symmetry: g+", "state_symmetry: sigma"), r"diatomic.state_symmetry: 'sigma' is not one of")
-
-
-def test_diatomic_unknown_key_suggests():
-    _fails(_N2.replace("omega_e_x_e:", "omega_ex_e:"), r"diatomic.omega_ex_e: unknown key — did you mean 'omega_e_x_e'")
-
-
-def test_diatomic_with_rotor_is_refused():
-    _fails(_N2 + "rotor: {constants: [1.99]}\n", r"rotor: give either a 'diatomic' block or rotor/vibrations")
-
-
-def test_homonuclear_symmetry_number():
-    _fails(_N2.replace("symmetry: 2", "symmetry: 1"), r"symmetry: 1 but a homonuclear diatomic has symmetry number 2")
-
-
-def test_excited_state_needs_energy():
-    cn = (SPECIES_DIR / "CN.yaml").read_text().replace("    - energy: 9245.28         # A 2Πi, Te\n      degeneracy: 4",
-                                                       "    - degeneracy: 4")
-    _fails(cn, r"diatomic.excited\[0\].energy: missing required key")
-
-
-def test_torsion_must_name_a_listed_frequency():
-    _fails(_C2H6.replace("replaces: 289", "replaces: 300"), r"torsions\[0\].replaces: 300 cm-1 matches none")
-
-
-def test_torsion_symmetry_divides_periodicity():
-    _fails(_C2H6.replace("    symmetry: 3\n", "    symmetry: 2\n"), r"torsions\[0\].symmetry: 2 does not divide the periodicity 3")
-
-
-def test_torsion_negative_barrier():
-    _fails(_C2H6.replace("barrier: 12.13", "barrier: -1"), r"torsions\[0\].barrier: -1 must not be negative")
-
-
-def test_torsion_in_a_diatomic():
-    extra = "torsions: [{replaces: 2330, barrier: 1, periodicity: 1, symmetry: 1, moment: 1}]\n"
-    _fails(_N2 + extra, r"torsions: only a polyatomic molecule has internal rotors")
+@pytest.mark.parametrize("case", list(_BAD_BLOCKS))
+def test_bad_advanced_block(case):
+    text, pattern = _BAD_BLOCKS[case]
+    _fails(text, pattern)
 
 
 # ---------------------------------------------------------------------------
