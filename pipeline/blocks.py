@@ -27,7 +27,7 @@ from pipeline.species import Diatomic, Torsion, _show
 
 #: keys of a ``diatomic:`` block → Diatomic field (all wavenumbers)
 _DIATOMIC_KEYS = ("omega_e", "omega_e_x_e", "omega_e_y_e", "B_e", "alpha_e", "gamma_e", "D_e", "beta_e", "H_e",
-                  "dissociation", "spin_spin", "spin_rotation")
+                  "dissociation", "spin_spin", "spin_rotation", "spin_orbit")
 _DIATOMIC_REQUIRED = ("omega_e", "omega_e_x_e", "B_e")
 #: exchange symmetry of a homonuclear ground state: g+ and u− are symmetric
 STATE_SYMMETRIES = ("g+", "g-", "u+", "u-")
@@ -127,6 +127,37 @@ def _read_state(ck, m: dict, path: str, f: float, homonuclear: bool, formula, sp
         nuclear_spin=spin,
         state_symmetry=sym or "",
     )
+
+
+def check_fine_structure(ck, diatomic: Diatomic, electronic) -> None:
+    """A level sum with explicit fine structure needs the whole term in ``electronic``.
+
+    With ``spin_orbit`` (a ²Π ground state) the ground level must have
+    degeneracy 4 and no separate level for the other Ω component; with
+    ``spin_spin``/``spin_rotation`` (³Σ) degeneracy 3.
+    """
+    if diatomic.spin_orbit and (diatomic.spin_spin or diatomic.spin_rotation):
+        ck.error("diatomic.spin_orbit", "a state is either ²Π (spin_orbit) or ³Σ (spin_spin, spin_rotation), not both")
+        return
+    want, term = (4, "²Π") if diatomic.spin_orbit else (3, "³Σ") if (diatomic.spin_spin or diatomic.spin_rotation) else (0, "")
+    if not want:
+        return
+    g0 = electronic[0][0]
+    if g0 != want:
+        ck.error(
+            "electronic.levels[0]",
+            f"degeneracy {g0}; with the {term} fine structure in the diatomic level sum the ground term is "
+            f"listed once with degeneracy {want} (e.g. [{want}, 0.0]); do not list its components separately",
+        )
+    if diatomic.spin_orbit:
+        split = abs(diatomic.spin_orbit)
+        for i, (g, e) in enumerate(electronic[1:], start=1):
+            if e < 3 * split:
+                ck.error(
+                    f"electronic.levels[{i}]",
+                    f"[{g}, {e / 100:g}] looks like the other ²Π spin-orbit component, which the level sum "
+                    "already holds (spin_orbit); remove it",
+                )
 
 
 def read_torsions(ck, raw: Any, rotor: Any = None) -> tuple[Torsion, ...]:

@@ -146,6 +146,7 @@ class Diatomic:
     excited: tuple = ()  # ((Te [m^-1], degeneracy, Diatomic), ...) excited states
     spin_spin: float = 0.0  # λ of a ³Σ state [m^-1]
     spin_rotation: float = 0.0  # γ of a ³Σ state [m^-1]
+    spin_orbit: float = 0.0  # A of a ²Π state [m^-1] (0: not a ²Π level sum)
 
 
 @dataclass(frozen=True)
@@ -706,6 +707,10 @@ def _build(ck: _Checker, doc: dict, digest: str) -> Species | None:
     electronic = ((1, 0.0),)
     if doc.get("electronic") is not None:
         electronic = _read_electronic(ck, doc["electronic"]) or electronic
+    if diatomic is not None:
+        from pipeline.blocks import check_fine_structure
+
+        check_fine_structure(ck, diatomic, electronic)
 
     formation = _read_formation(ck, doc["formation"]) if "formation" in doc else None
 

@@ -119,6 +119,18 @@ def test_diatomic_h298_h0_codata(name, value):
     assert table(name).h298_minus_h0 / 1e3 == pytest.approx(value, abs=0.005)
 
 
+def test_oh_doublet_pi_levels():
+    """OH X²Π (inverted): above 2Π3/2 J = 3/2 lie J = 5/2 at 83.92 and 2Π1/2 J = 1/2 at
+    126.29 cm-1 (far-infrared/microwave term values, from memory)."""
+    e, _ = diatomic_levels(species("OH").diatomic, 100.0)
+    assert np.sort(e)[1:3] / 100 == pytest.approx([83.92, 126.29], abs=0.1)
+
+
+def test_oh_h298_h0():
+    # NIST-JANAF Thermochemical Tables (Chase 1998): H°298 − H°0 = 8.813 kJ/mol for OH (from memory)
+    assert table("OH").h298_minus_h0 / 1e3 == pytest.approx(8.813, abs=0.01)
+
+
 # ---------------------------------------------------------------------------
 # Nuclear-spin statistics (homonuclear): equilibrium ortho/para standard state
 # ---------------------------------------------------------------------------
@@ -410,6 +422,12 @@ _BAD_BLOCKS = {
         r"torsions\[0\].symmetry: 2 does not divide the periodicity 3"),
     "negative barrier": (
         _C2H6.replace("barrier: 12.13", "barrier: -1"), r"torsions\[0\].barrier: -1 must not be negative"),
+    "2Π components listed twice": (
+        (SPECIES_DIR / "OH.yaml").read_text().replace("levels: [[4, 0.0]]", "levels: [[2, 0.0], [2, 139.2]]"),
+        r"electronic.levels\[0\]: degeneracy 2; with the ²Π fine structure"),
+    "3Σ ground degeneracy": (
+        (SPECIES_DIR / "O2.yaml").read_text().replace("- [3, 0.0] ", "- [1, 0.0] "),
+        r"electronic.levels\[0\]: degeneracy 1; with the ³Σ fine structure"),
     "torsion in a diatomic": (
         _N2 + "torsions: [{replaces: 2330, barrier: 1, periodicity: 1, symmetry: 1, moment: 1}]\n",
         r"torsions: only a polyatomic molecule has internal rotors"),

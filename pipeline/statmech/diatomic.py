@@ -183,7 +183,12 @@ def _state_levels(d, offset: float, weight: float, ceiling: float):
         rising = Bv - 2 * Dv * jj + 3 * d.H_e * jj**2 > 0
         keep = np.logical_and.accumulate(rising) & (E <= cap)
         w = np.where(J % 2 == 0, even_w, odd_w) * weight
-        if d.spin_spin or d.spin_rotation:
+        if d.spin_orbit:
+            for comp, deg in _doublet_pi_components(Bv, Dv, J, d.spin_orbit):
+                ok = keep & (w * deg > 0) & (Gv + comp <= cap)
+                energies.append(Gv + comp[ok] + offset)
+                weights.append((w * deg)[ok])
+        elif d.spin_spin or d.spin_rotation:
             # J here is N; the three fine-structure components of each N
             for comp, deg in _triplet_components(Bv * jj - Dv * jj**2 + d.H_e * jj**3, J, d):
                 ok = keep & (w * deg > 0)
@@ -198,6 +203,38 @@ def _state_levels(d, offset: float, weight: float, ceiling: float):
             break
         v += 1
     return np.concatenate(energies), np.concatenate(weights)
+
+
+def _doublet_pi_components(Bv, Dv, N, A):
+    """Levels of a ²Π state in intermediate coupling: [(energies, degeneracies)].
+
+    Hill–Van Vleck, Y = A/B_v, x = J + ½:
+    F∓(J) = B_v[x² − 1 ∓ ½√(4x² + Y(Y−4))] − D_v [N(N+1)]²,
+    the lower root with N = J − ½, the upper with N = J + ½ (case-(b) labels,
+    which also index the arrays here).  J = ½ has one level only,
+    B_v − A/2 (the lower root when Y > 2, the upper otherwise).  Each J of
+    each component is a Λ-doublet: degeneracy 2(2J+1), divided by 4 because
+    the species' ``electronic:`` block gives the whole ²Π term its
+    degeneracy 4 (2 for Λ × 2 for spin).
+
+    Reference: E. L. Hill and J. H. Van Vleck, Phys. Rev. 32, 250 (1928);
+    G. Herzberg, *Spectra of Diatomic Molecules* (1950), eq. V,28.
+    """
+    Y = A / Bv
+    # lower root: N = 0, 1, … with J = N + ½ (x = N + 1)
+    x = N + 1.0
+    lower = Bv * (x * x - 1 - 0.5 * np.sqrt(4 * x * x + Y * (Y - 4))) - Dv * (N * (N + 1)) ** 2
+    lower_deg = 2 * (2 * (N + 0.5) + 1) / 4
+    # upper root: N = 1, 2, … with J = N − ½ (x = N)
+    x = np.maximum(N, 1).astype(float)  # N = 0 has no upper level (weight 0 below)
+    upper = Bv * (x * x - 1 + 0.5 * np.sqrt(4 * x * x + Y * (Y - 4))) - Dv * (N * (N + 1)) ** 2
+    upper_deg = np.where(N >= 1, 2 * (2 * (N - 0.5) + 1) / 4, 0.0)
+    # J = ½ exists once: drop the root that is not B − A/2
+    if Y > 2:
+        upper_deg = np.where(N == 1, 0.0, upper_deg)
+    else:
+        lower_deg = np.where(N == 0, 0.0, lower_deg)
+    return [(lower, lower_deg), (upper, upper_deg)]
 
 
 def _triplet_components(F, N, d):
