@@ -216,6 +216,12 @@ def test_polyatomic_cp(name):
     assert abs(rel[-1]) < 0.03
 
 
+@pytest.mark.parametrize("name", POLYATOMICS)
+def test_polyatomic_s298(name):
+    """S298 within 0.3 J/mol/K of GRI-Mech 3.0 thermo (the foundation's bar for rigid-rotor/harmonic input)."""
+    assert thermo_table(species(name), [298.15]).s298 == pytest.approx(ref_s("gri30.yaml", name, 298.15), abs=0.3)
+
+
 @pytest.mark.parametrize("name", ["C2H6", "CH3OH", "H2O2"])  # GRI-Mech 3.0 thermo
 def test_hindered_torsion_s298(name):
     sp = species(name)
