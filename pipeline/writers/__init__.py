@@ -37,7 +37,7 @@ from pathlib import PurePath
 
 from pipeline.writers.rounding import printed_fit
 
-__all__ = ["species_fragments", "assemble", "printed_fit", "record_elements", "FORMAT_VERSION", "table_path"]
+__all__ = ["species_fragments", "assemble", "printed_fit", "record_text", "record_elements", "FORMAT_VERSION", "table_path"]
 
 #: version of the thermo.yaml format (docs/format.md); bump on incompatible change
 FORMAT_VERSION = 1
@@ -113,20 +113,14 @@ def species_fragments(species, table, fit, settings) -> dict[str, str]:
     from pipeline.thermo import T_REF, temperature_grid, thermo_table
     from pipeline.writers.formats import render
 
+    import dataclasses
+
     s = settings.for_species(species)
+    fit = dataclasses.replace(fit, name=species.name, formula=tuple(species.formula), charge=int(species.charge))
     printed = printed_fit(fit)
     quality = fit.quality.as_dict() if hasattr(fit.quality, "as_dict") else {}
     elements = record_elements(species.formula, species.charge)
-    if len(elements) > 5:
-        raise ValueError(f"{species.name}: {len(elements)} elements (electron included) do not fit a record (at most 5)")
-    ident = identifier(species.sha256) if species.sha256 else ""
-    record = render(
-        "record.dat.j2", name=species.name, identifier=ident,
-        elements=elements[:4] + [None] * (4 - len(elements[:4])), fifth=elements[4] if len(elements) > 4 else None,
-        phase=printed.phase, tlow=printed.tlow, tmid=printed.tmid, thigh=printed.thigh,
-        low=printed.low, high=printed.high,
-    )
-    _check_record(species.name, record)
+    record = record_text(printed, identifier(species.sha256) if species.sha256 else "")
 
     # property table at the table step, with the printed polynomials beside it
     grid = temperature_grid(s.tmin, s.tmax, s.table_step)
@@ -142,9 +136,9 @@ def species_fragments(species, table, fit, settings) -> dict[str, str]:
         ("H-H298 [kJ/mol]", tab.h_minus_h298 / 1e3, ".6f"), ("-(G-H298)/T [J/mol/K]", tab.g_fn, ".6f"),
         ("Cp fit [J/mol/K]", cp_f, ".6f"), ("S fit [J/mol/K]", s_f, ".6f"),
         ("H-H298 fit [kJ/mol]", dh_f / 1e3, ".6f"), ("-(G-H298)/T fit [J/mol/K]", gfn_f, ".6f"),
-        ("Cp residual [J/mol/K]", cp_f - tab.cp, ".3e"), ("S residual [J/mol/K]", s_f - tab.s, ".3e"),
-        ("H-H298 residual [kJ/mol]", (dh_f - tab.h_minus_h298) / 1e3, ".3e"),
-        ("-(G-H298)/T residual [J/mol/K]", gfn_f - tab.g_fn, ".3e"),
+        ("Cp residual [J/mol/K]", cp_f - tab.cp, ".6f"), ("S residual [J/mol/K]", s_f - tab.s, ".6f"),
+        ("H-H298 residual [kJ/mol]", (dh_f - tab.h_minus_h298) / 1e3, ".6f"),
+        ("-(G-H298)/T residual [J/mol/K]", gfn_f - tab.g_fn, ".6f"),
     ]
     if u is not None:
         from pipeline.uncertainty import table_columns
@@ -191,9 +185,10 @@ def species_fragments(species, table, fit, settings) -> dict[str, str]:
         note = f"- `{species.name}`: {report_u['g1000']:.2f} kJ/mol{dominant}\n"
     plot = ""
     if s.plots:
-        from pipeline.plots import PLOTS_DIR, plot_file_name
+        from pipeline.plots import PLOTS_DIR, available, plot_file_name
 
-        plot = f"[plot](<{PLOTS_DIR}/{plot_file_name(species.name)}>)"
+        if available():  # without matplotlib the build writes no plots: link none
+            plot = f"[plot](<{PLOTS_DIR}/{plot_file_name(species.name)}>)"
     row = render(
         "report_row.md.j2", name=species.name, formula=" ".join(f"{el}{n}" for el, n in elements),
         dhf298=table.dhf298 / 1e3, s298=table.s298, cp298=table.cp298, tmid=printed.tmid,
@@ -205,6 +200,31 @@ def species_fragments(species, table, fit, settings) -> dict[str, str]:
     )
     return {"name": species.name, "record": record, "yaml": entry, "report_row": row,
             "report_note": note, "table_csv": table_csv}
+
+
+def record_text(fit, identifier: str = "") -> str:
+    """The four 80-column lines of one record (NASA TM-4513 layout), as printed.
+
+    ``fit`` is printed with :func:`printed_fit` (idempotent, so an already
+    printed fit is written unchanged); ``identifier`` fills columns 19–24.
+    Elements are the fit's formula and, for an ion, ``E`` with count −charge;
+    a fifth element goes to columns 74–78; more do not fit and raise ValueError.
+    """
+    from pipeline.writers.formats import render
+
+    p = printed_fit(fit)
+    elements = record_elements(p.formula, p.charge)
+    if len(elements) > 5:
+        raise ValueError(f"{p.name}: {len(elements)} elements (electron included) do not fit a record (at most 5)")
+    if len(identifier) > 6:
+        raise ValueError(f"{p.name}: identifier {identifier!r} is longer than columns 19–24")
+    text = render(
+        "record.dat.j2", name=p.name, identifier=identifier,
+        elements=elements[:4] + [None] * (4 - len(elements[:4])), fifth=elements[4] if len(elements) > 4 else None,
+        phase=p.phase, tlow=p.tlow, tmid=p.tmid, thigh=p.thigh, low=p.low, high=p.high,
+    )
+    _check_record(p.name, text)
+    return text
 
 
 def _uncertainty(species, T, pressure):

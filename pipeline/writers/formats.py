@@ -79,8 +79,8 @@ def yaml_value(value) -> str:
     signed exponent so that YAML 1.1 loaders (PyYAML) also read a float;
     strings are double-quoted (JSON escapes); mappings and lists in flow style.
 
-    >>> yaml_value({"a": [1, 2.5e-05, None, True, "NO"]})
-    '{a: [1, 2.5e-05, null, true, "NO"]}'
+    >>> yaml_value({"ab": [1, 2.5e-05, None, True, "NO"]})
+    '{ab: [1, 2.5e-05, null, true, "NO"]}'
     >>> yaml_value(1e-05), yaml_value(-3e+20), yaml_value(float("inf"))
     ('1.0e-05', '-3.0e+20', '.inf')
     """

@@ -182,9 +182,7 @@ def _single_moves(steps: np.ndarray, v: dict, cp_fixed: bool, cells: dict, windo
             if effect == 0.0:
                 continue
             stride = max(1, int(0.5 * windows[q] / effect))
-            lo, hi = (math.ceil(c * cells[q] / (stride * effect)) for c in sweep)
-            if sweep[0] == 0:
-                lo, hi = 0, max(hi, 24)
+            lo, hi = (max(math.ceil(c * cells[q] / (stride * effect)), 25 * c) for c in sweep)
             ks.append(stride * np.arange(lo + 1, min(hi, 2000) + 1))
         k = np.unique(np.concatenate(ks)) if ks else np.zeros(0)
         block = np.zeros((2 * len(k), 5))
@@ -317,7 +315,10 @@ def _aimed(base: list[float], T: float, targets: dict, span) -> tuple | None:
 
 
 def _balanced(src, T: float, targets: dict, span, what: str, name: str) -> tuple:
-    base = [round_sig(x) for x in src[:5]]
+    plain = tuple(round_sig(x) for x in src)
+    if _meets(plain, T, targets):  # plain rounding is enough (and printed input stays as it is)
+        return plain
+    base = list(plain[:5])
     a = _close(base, T, targets)
     if _meets(a, T, targets):
         return a
@@ -334,7 +335,9 @@ def printed_fit(fit: Nasa7Fit) -> Nasa7Fit:
     constrained fit makes ΔfH°298/RT and S°298/R), and continuity of Cp/R,
     H/RT, S/R at the printed Tmid.  Every coefficient of the result is exactly
     the float its E15.8 field reads back.  See the module docstring for the
-    method.  Raises ``ValueError`` if no nudge meets the bars (not seen for a
+    method.  Printing is idempotent: ``printed_fit(printed_fit(f)) ==
+    printed_fit(f)``, so records read back from a file print unchanged.
+    Raises ``ValueError`` if no nudge meets the bars (not seen for a
     realistic fit).
 
     Examples

@@ -1,0 +1,313 @@
+"""Writers: rounding-aware printing, the fixed-column layout, thermo.yaml, tables, report, determinism.
+
+Reference coefficients: the NASA TM-4513-form data that cantera ships —
+``gri30.yaml`` (GRI-Mech 3.0 thermo, Smith et al.) and ``nasa_gas.yaml``
+(NASA Glenn, McBride, Zehe & Gordon 2002) — used as realistic inputs.
+"""
+
+from __future__ import annotations
+
+import functools
+import io
+import json
+import random
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from refdata import ROOT, SPECIES_DIR
+
+from pipeline import __version__
+from pipeline.nasa7 import Nasa7Fit
+from pipeline.readers import read_records
+from pipeline.settings import Settings
+from pipeline.thermo import T_REF
+from pipeline.writers import assemble, printed_fit, record_text, species_fragments
+from pipeline.writers.rounding import CP_BAR, H_S_BAR, round_sig
+
+#: the bars of the writers issue (item 2): as printed, H and S at 298.15 K and at Tmid
+#: within 1e-9, Cp at Tmid within 1e-8, relative to max(|value|, 1) of Cp/R, H/RT, S/R
+BARS = {"cp_r": CP_BAR, "h_rt": H_S_BAR, "s_r": H_S_BAR}
+SMALL = ("Ar", "CH4", "CO2", "H2O", "OH", "NO", "CH3", "H2O2")
+
+
+def cantera_fits(source: str) -> list[Nasa7Fit]:
+    """The two-range NASA7 species of a cantera data file as Nasa7Fit (charge from 'E')."""
+    import cantera as ct
+
+    out = []
+    for sp in ct.Species.list_from_file(source):
+        c = sp.thermo.coeffs
+        if type(sp.thermo).__name__ != "NasaPoly2" or len(c) != 15:
+            continue
+        comp = {el: int(round(n)) for el, n in sp.composition.items()}
+        charge = -comp.pop("E", 0)
+        out.append(Nasa7Fit(sp.name, tuple(comp.items()), sp.thermo.min_temp, float(c[0]), sp.thermo.max_temp,
+                            tuple(c[8:15]), tuple(c[1:8]), charge=charge))
+    return out
+
+
+@functools.lru_cache(maxsize=None)
+def small_build():
+    """species, fine tables, fits, fragments of a few bundled species under the default settings."""
+    from pipeline.fit import fit_options, fit_tables
+    from pipeline.species import load_species
+    from pipeline.thermo import temperature_grid, thermo_table
+
+    settings = Settings()
+    species = [load_species(SPECIES_DIR / f"{n}.yaml", display=f"species/{n}.yaml")[0] for n in SMALL]
+    tables = [thermo_table(sp, temperature_grid(settings.tmin, settings.tmax, settings.grid_step),
+                           settings.pressure_pa) for sp in species]
+    fits = fit_tables(tables, [fit_options(sp, settings) for sp in species])
+    frags = [species_fragments(sp, t, f, settings) for sp, t, f in zip(species, tables, fits)]
+    return settings, species, tables, fits, frags
+
+
+def as_printed(fit: Nasa7Fit) -> Nasa7Fit:
+    """The record of ``fit`` written and read back: exactly what a solver evaluates."""
+    (back,) = read_records(record_text(fit), name="record")
+    return back
+
+
+def assert_bars(original: Nasa7Fit, back: Nasa7Fit):
+    h0, s0 = float(original.h_rt(T_REF)), float(original.s_r(T_REF))
+    assert abs(float(back.h_rt(T_REF)) - h0) <= H_S_BAR * max(abs(h0), 1.0), original.name
+    assert abs(float(back.s_r(T_REF)) - s0) <= H_S_BAR * max(abs(s0), 1.0), original.name
+    for key, jump in back.continuity().items():
+        assert jump <= BARS[key], (original.name, key, jump)
+
+
+# --------------------------------------------------------------------------
+# printed coefficients
+# --------------------------------------------------------------------------
+
+
+def test_round_sig_is_what_e15_prints():
+    from pipeline.writers.formats import e15
+
+    rng = random.Random(4)
+    for _ in range(2000):
+        x = rng.uniform(-1, 1) * 10 ** rng.randint(-25, 6)
+        assert round_sig(x) == float(e15(x))
+
+
+def test_bundled_fits_meet_the_bars_as_printed():
+    _, _, _, fits, _ = small_build()
+    for fit in fits:
+        back = as_printed(fit)
+        assert_bars(fit, back)
+        assert back.low == printed_fit(fit).low and back.high == printed_fit(fit).high
+
+
+@pytest.mark.parametrize("source", ["gri30.yaml", "nasa_gas.yaml"])
+def test_published_coefficients_perturbed_meet_the_bars_as_printed(source):
+    """Full-precision inputs near published sets (GRI-Mech 3.0; NASA Glenn 2002, both as
+    shipped with cantera), made continuous at Tmid and perturbed in the 8th digit."""
+    rng = np.random.default_rng(7)
+    fits = cantera_fits(source)
+    if source == "nasa_gas.yaml":
+        fits = fits[::4]
+    for f in fits:
+        low = np.array(f.low) * (1 + 1e-8 * rng.standard_normal(7))
+        high = np.array(f.high) * (1 + 1e-8 * rng.standard_normal(7))
+        fit = Nasa7Fit(f.name, f.formula, f.tlow, f.tmid, f.thigh, tuple(low), tuple(high), charge=f.charge)
+        back = as_printed(fit)
+        assert_bars(fit, back)
+        # the nudges stay far below any fit error: Cp changes by < 1e-5 relative
+        T = np.linspace(fit.tlow, fit.thigh, 301)
+        T = T[np.abs(T - fit.tmid) > 1.0]
+        assert np.max(np.abs(back.cp_r(T) / fit.cp_r(T) - 1)) < 1e-5, f.name
+
+
+def test_printing_is_idempotent():
+    for f in cantera_fits("gri30.yaml"):
+        p = printed_fit(f)
+        assert printed_fit(p) == p
+
+
+# --------------------------------------------------------------------------
+# fixed-column layout (columns as docs/format.md documents them)
+# --------------------------------------------------------------------------
+
+
+def parse_by_columns(record: str) -> dict:
+    """Read a record strictly by the documented columns (1-based, inclusive)."""
+    l1, l2, l3, l4 = record.rstrip("\n").split("\n")
+    col = lambda line, a, b: line[a - 1:b]  # noqa: E731
+    coeffs = [float(col(l, 15 * k + 1, 15 * k + 15)) for l, n in ((l2, 5), (l3, 5), (l4, 4)) for k in range(n)]
+    elements = []
+    for a in (25, 30, 35, 40, 74):
+        sym, count = col(l1, a, a + 1).strip(), col(l1, a + 2, a + 4).strip()
+        if sym:
+            elements.append((sym, int(count)))
+    return {
+        "name": col(l1, 1, 18).strip(), "id": col(l1, 19, 24), "elements": elements, "phase": col(l1, 45, 45),
+        "tlow": float(col(l1, 46, 55)), "thigh": float(col(l1, 56, 65)), "tmid": float(col(l1, 66, 73)),
+        "numbers": [col(l, 80, 80) for l in (l1, l2, l3, l4)], "lengths": [len(l) for l in (l1, l2, l3, l4)],
+        "high": coeffs[:7], "low": coeffs[7:],
+    }
+
+
+def test_record_columns_match_the_documented_layout():
+    settings, species, _, fits, frags = small_build()
+    for sp, fit, fr in zip(species, fits, frags):
+        rec = parse_by_columns(fr["record"])
+        p = printed_fit(fit)
+        assert rec["lengths"] == [80] * 4 and rec["numbers"] == ["1", "2", "3", "4"]
+        assert rec["name"] == sp.name
+        assert rec["id"] == sp.sha256[:6].upper()  # stable identifier from the input, not a date
+        assert rec["elements"] == list(sp.formula)
+        assert rec["phase"] == "G"
+        assert (rec["tlow"], rec["tmid"], rec["thigh"]) == (p.tlow, p.tmid, p.thigh)
+        assert rec["high"] == list(p.high) and rec["low"] == list(p.low)  # high range first
+
+
+def test_ions_carry_the_electron_and_a_fifth_element_goes_to_columns_74_78():
+    """Cations as in NASA Glenn data (cantera's nasa_gas.yaml): element E with count −charge."""
+    fits = {f.name: f for f in cantera_fits("nasa_gas.yaml")}
+    ion = fits["NO+"]
+    rec = parse_by_columns(record_text(ion))
+    assert ("E", -1) in rec["elements"] and ion.charge == 1
+    five = Nasa7Fit("CHNOAR", (("C", 1), ("H", 1), ("N", 1), ("O", 1), ("Ar", 1)), ion.tlow, ion.tmid,
+                    ion.thigh, ion.low, ion.high)  # a layout test: five elements, coefficients of NO+
+    rec = parse_by_columns(record_text(five))
+    assert rec["elements"][4] == ("Ar", 1) and rec["tmid"] == printed_fit(five).tmid
+    six = Nasa7Fit("X", five.formula, ion.tlow, ion.tmid, ion.thigh, ion.low, ion.high, charge=1)
+    with pytest.raises(ValueError, match="do not fit"):
+        record_text(six)
+
+
+def test_database_file_frame():
+    settings, _, _, _, frags = small_build()
+    text = assemble(frags, settings)["thermo.dat"].decode()
+    lines = text.split("\n")
+    body = [l for l in lines if not l.startswith("!")]
+    assert body[0] == "THERMO"
+    assert [float(x) for x in body[1].split()] == [settings.tmin, 1000.0, settings.tmax]
+    assert body[-2] == "END" and body[-1] == ""
+    names = [l[:18].strip() for l in body[2:-2] if l[79] == "1"]
+    assert names == sorted(names) and len(names) == len(frags)
+
+
+# --------------------------------------------------------------------------
+# determinism
+# --------------------------------------------------------------------------
+
+
+def test_two_renders_are_byte_identical_and_order_free():
+    settings, species, tables, fits, frags = small_build()
+    again = [species_fragments(sp, t, f, settings) for sp, t, f in zip(species, tables, fits)]
+    assert again == frags
+    shuffled = list(frags)
+    random.Random(1).shuffle(shuffled)
+    assert assemble(shuffled, settings) == assemble(frags, settings)
+
+
+def test_outputs_hold_no_absolute_path_and_no_date():
+    import re
+
+    settings, _, _, _, frags = small_build()
+    for rel, data in assemble(frags, settings).items():
+        text = data.decode("utf-8")
+        assert str(ROOT) not in text and str(Path.home()) not in text, rel
+        assert not re.search(r"\b20\d\d-\d\d-\d\d\b", text), rel
+
+
+# --------------------------------------------------------------------------
+# thermo.yaml
+# --------------------------------------------------------------------------
+
+
+def load_thermo_yaml(data: bytes):
+    import yaml
+
+    from pipeline.species import load_yaml
+
+    doc = yaml.safe_load(data.decode())  # a YAML 1.1 loader
+    assert load_yaml(data.decode()) == doc  # and this project's YAML 1.2 loader: the same values
+    return doc
+
+
+def test_thermo_yaml_round_trips_exactly_and_records_provenance():
+    settings, species, tables, fits, frags = small_build()
+    doc = load_thermo_yaml(assemble(frags, settings)["thermo.yaml"])
+    assert doc["format"] == "statherm-thermo" and doc["format_version"] == 1
+    entries = {e["name"]: e for e in doc["species"]}
+    for sp, table, fit in zip(species, tables, fits):
+        e = entries[sp.name]
+        assert e["composition"] == dict(sp.formula) and e["charge"] == sp.charge
+        assert e["ranges"][0]["coefficients"] == list(fit.low)  # repr-exact floats
+        assert e["ranges"][1]["coefficients"] == list(fit.high)
+        assert (e["ranges"][0]["tmin"], e["tmid"], e["ranges"][1]["tmax"]) == (fit.tlow, fit.tmid, fit.thigh)
+        assert e["reference_state"]["dhf298"] == table.dhf298 and e["reference_state"]["s298"] == table.s298
+        prov = e["provenance"]
+        assert prov["sha256"] == sp.sha256 and prov["tool_version"] == __version__
+        assert prov["model"] == settings.for_species(sp).model_key()
+        assert prov["reference_pressure"] == settings.pressure_pa
+        assert prov["species_file"] == Path(sp.path).name  # the file name only, never a full path
+        assert e["fit_quality"] == json.loads(json.dumps(fit.quality.as_dict()))
+        assert e["sources"] == list(sp.sources)
+
+
+def test_thermo_yaml_validates_against_the_shipped_schema():
+    import jsonschema
+
+    settings, _, _, _, frags = small_build()
+    schema = json.loads((ROOT / "pipeline" / "schema" / "thermo.schema.json").read_text())
+    jsonschema.Draft202012Validator.check_schema(schema)
+    doc = load_thermo_yaml(assemble(frags, settings)["thermo.yaml"])
+    jsonschema.Draft202012Validator(schema).validate(doc)
+    broken = json.loads(json.dumps(doc))
+    broken["species"][0]["ranges"][0]["coefficients"] = broken["species"][0]["ranges"][0]["coefficients"][:6]
+    with pytest.raises(jsonschema.ValidationError):
+        jsonschema.validate(broken, schema)
+    del broken["species"][1]["provenance"]["sha256"]
+    assert not jsonschema.Draft202012Validator(schema).is_valid(broken)
+
+
+def test_strings_that_yaml_reads_otherwise_stay_strings():
+    from pipeline.writers.formats import yaml_value
+
+    import yaml
+
+    for value in ["NO", "Y", "off", "1e3", "3.0", "null", "a: b", "#x", "ok\u2028line", "'q'", '"dq"']:
+        assert yaml.safe_load(yaml_value(value)) == value
+    for x in (1e-05, -3e20, 0.1, 2.5, 1e100, 5e-324):
+        assert yaml.safe_load(yaml_value(x)) == x
+
+
+# --------------------------------------------------------------------------
+# tables and report
+# --------------------------------------------------------------------------
+
+
+def test_tables_read_with_pandas_and_hold_table_fit_and_residuals():
+    import pandas as pd
+
+    settings, species, _, fits, frags = small_build()
+    files = assemble(frags, settings)
+    for sp, fit in zip(species, fits):
+        df = pd.read_csv(io.BytesIO(files[f"tables/{sp.name}.csv"]))
+        T = df["T [K]"].to_numpy()
+        assert T298 in T and np.all(np.isin([200.0, 300.0, 1000.0, 6000.0], T))
+        assert np.all(np.diff(T) > 0)
+        p = printed_fit(fit)
+        assert np.allclose(df["Cp fit [J/mol/K]"], p.cp(T), rtol=0, atol=1e-6)
+        assert np.allclose(df["Cp residual [J/mol/K]"], df["Cp fit [J/mol/K]"] - df["Cp [J/mol/K]"], atol=2e-6)
+        assert np.allclose(df["S residual [J/mol/K]"], df["S fit [J/mol/K]"] - df["S [J/mol/K]"], atol=2e-6)
+        row = df[df["T [K]"] == T298].iloc[0]
+        assert row["H-H298 [kJ/mol]"] == 0.0 and abs(row["H-H298 fit [kJ/mol]"]) < 1e-6
+
+
+T298 = 298.15
+
+
+def test_report_has_one_row_per_species_in_name_order():
+    settings, species, _, _, frags = small_build()
+    report = assemble(frags, settings)["REPORT.md"].decode()
+    rows = [l for l in report.splitlines() if l.startswith("| `")]
+    assert [r.split("`")[1] for r in rows] == sorted(sp.name for sp in species)
+    assert "## Caution" in report and "## How the tables were made" in report
+    width = next(l for l in report.splitlines() if l.startswith("|---")).count("|")
+    assert all(r.count("|") == width for r in rows)
