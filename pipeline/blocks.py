@@ -167,7 +167,8 @@ def read_torsions(ck, raw: Any, rotor: Any = None) -> tuple[Torsion, ...]:
     check ties it to one listed frequency.  The reduced moment is either
     ``moment`` (``moment_unit``, default amu*angstrom^2) or, with a ``rotor:
     geometry:``, ``top`` (0-based indices of the rotating atoms) and ``axis``
-    (the two atoms of the bond): I^(2,1) of :func:`pipeline.geometry.torsion_moment`.
+    (the two atoms of the bond): Pitzer's reduced moment,
+    :func:`pipeline.geometry.torsion_moment`.
     """
     if not isinstance(raw, list) or not raw:
         ck.error("torsions", f"{_show(raw)} is not a list of torsion mappings (- replaces: ..., barrier: ...)")
@@ -298,7 +299,7 @@ def _geometry_atoms(ck, rows: Any, scale: float):
 
 
 def _moment_from_geometry(ck, m: dict, path: str, rotor: Any) -> float | None:
-    """I^(2,1) [u Å²] of a torsion from ``top``/``axis`` and the rotor geometry."""
+    """Reduced moment [u Å²] of a torsion from ``top``/``axis`` and the rotor geometry."""
     if not isinstance(rotor, dict) or "geometry" not in rotor:
         ck.error(f"{path}.top", "needs a rotor.geometry to compute the reduced moment (or give 'moment')")
         return None

@@ -46,6 +46,22 @@ LINEAR_TOLERANCE = 1e-4
 _U_A2 = C.atomic_mass * 1e-20
 
 
+def inertia_tensor(masses, coords) -> np.ndarray:
+    """Inertia tensor about the centre of mass [u Å²].
+
+    I = Σ_i m_i (|r_i|² 𝟙 − r_i r_iᵀ), r_i measured from the centre of mass.
+
+    >>> inertia_tensor([1.0, 1.0], [[0, 0, -1], [0, 0, 1]]).diagonal().tolist()
+    [2.0, 2.0, 0.0]
+
+    Reference: H. Goldstein, *Classical Mechanics*, 2nd ed. (1980), §5-3.
+    """
+    m = np.asarray(masses, dtype=float)
+    r = np.asarray(coords, dtype=float).reshape(-1, 3)
+    r = r - (m[:, None] * r).sum(axis=0) / m.sum()
+    return np.eye(3) * (m * (r * r).sum(axis=1)).sum() - np.einsum("i,ij,ik->jk", m, r, r)
+
+
 def principal_moments(masses, coords) -> np.ndarray:
     """Principal moments of inertia about the centre of mass, ascending.
 
@@ -73,11 +89,7 @@ def principal_moments(masses, coords) -> np.ndarray:
 
     Reference: H. Goldstein, *Classical Mechanics*, 2nd ed. (1980), §5-3.
     """
-    m = np.asarray(masses, dtype=float)
-    r = np.asarray(coords, dtype=float).reshape(-1, 3)
-    r = r - (m[:, None] * r).sum(axis=0) / m.sum()
-    tensor = np.eye(3) * (m * (r * r).sum(axis=1)).sum() - np.einsum("i,ij,ik->jk", m, r, r)
-    moments = np.linalg.eigvalsh(tensor)
+    moments = np.linalg.eigvalsh(inertia_tensor(masses, coords))
     return np.where(np.abs(moments) < 1e-12 * max(1.0, moments.max()), 0.0, moments)
 
 
@@ -116,12 +128,18 @@ def rotational_constant(moment_u_a2):
 
 
 def torsion_moment(masses, coords, top, axis) -> float:
-    """Reduced moment I^(2,1) of a torsion about the bond that carries it.
+    """Reduced moment of inertia of a rigid top turning about a bond.
 
-    I_red = I_top I_rest / (I_top + I_rest), where I_top and I_rest are the
-    moments of the rotating top and of the rest of the molecule about the line
-    through the two ``axis`` atoms (the "(2,1)" approximation of East & Radom,
-    which ignores the coupling to overall rotation).
+    The top (atoms ``top``) turns at unit rate about the line through the two
+    ``axis`` atoms while the whole molecule moves so that its linear and angular
+    momentum stay zero (Pitzer's reduced moment):
+
+      v_a = u × (r_a − r_P) for top atoms, 0 for the frame, plus V (keeps Σ m v = 0),
+      A = Σ m_a |v_a|²,  d = Σ m_a r_a × v_a  (r from the centre of mass),
+      I_red = A − dᵀ I⁻¹ d,
+
+    with I the inertia tensor of the whole molecule.  For a top on a symmetric
+    axis through the centre of mass (ethane) this is A_top A_rest/(A_top + A_rest).
 
     Parameters
     ----------
@@ -140,7 +158,7 @@ def torsion_moment(masses, coords, top, axis) -> float:
 
     Examples
     --------
-    Two equal CH3 tops (H 1.0199 Å off the axis) give half of one top's 3 m_H r²:
+    Two equal CH3 tops (H 1.0199 Å off the axis): half of one top's 3 m_H r²:
 
     >>> r = 1.0199; h = 1.00782503223
     >>> xyz = [[0, 0, 0.7655], [0, 0, -0.7655]] + [
@@ -149,18 +167,18 @@ def torsion_moment(masses, coords, top, axis) -> float:
     >>> round(torsion_moment([12.0, 12.0] + [h] * 6, xyz, top=[0, 2, 3, 4], axis=(0, 1)), 4)
     1.5725
 
-    Reference: A. L. L. East and L. Radom, J. Chem. Phys. 106, 6655 (1997);
-    K. S. Pitzer, J. Chem. Phys. 14, 239 (1946).
+    Reference: K. S. Pitzer, J. Chem. Phys. 14, 239 (1946); J. E. Kilpatrick
+    and K. S. Pitzer, J. Chem. Phys. 17, 1064 (1949).
     """
     m = np.asarray(masses, dtype=float)
     r = np.asarray(coords, dtype=float).reshape(-1, 3)
+    r = r - (m[:, None] * r).sum(axis=0) / m.sum()
     a, b = axis
-    u = r[b] - r[a]
-    u = u / np.linalg.norm(u)
-    d = r - r[a]
-    perp2 = (d * d).sum(axis=1) - (d @ u) ** 2  # squared distance from the bond line
+    u = (r[b] - r[a]) / np.linalg.norm(r[b] - r[a])
     in_top = np.zeros(m.size, dtype=bool)
     in_top[list(top)] = True
-    i_top = float((m * perp2)[in_top].sum())
-    i_rest = float((m * perp2)[~in_top].sum())
-    return i_top * i_rest / (i_top + i_rest)
+    v = np.where(in_top[:, None], np.cross(u, r - r[a]), 0.0)
+    v = v - (m[:, None] * v).sum(axis=0) / m.sum()  # no net translation
+    big_a = float((m * (v * v).sum(axis=1)).sum())
+    d = (m[:, None] * np.cross(r, v)).sum(axis=0)
+    return big_a - float(d @ np.linalg.solve(inertia_tensor(m, r), d))

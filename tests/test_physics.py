@@ -476,7 +476,7 @@ sources: ["test"]
 
 
 def test_torsion_moment_from_geometry():
-    """I^(2,1) of two equal CH3 tops = ½ · 3 m_H r⊥², r⊥ = r_CH sin(∠HCC) (East & Radom 1997)."""
+    """Reduced moment of two equal CH3 tops = ½ · 3 m_H r⊥², r⊥ = r_CH sin(∠HCC) (Pitzer 1946)."""
     sp, _ = parse_species(_C2H6_GEOMETRY.encode(), "C2H6.yaml")
     r_perp = 1.0199  # the input rounds the other H positions to 1e-5 Å
     expect = 0.5 * 3 * 1.00782503223 * r_perp**2  # 1H mass, AME2020 (from memory)
@@ -502,3 +502,75 @@ def test_torsion_axis_must_cross_the_top():
 def test_torsion_top_index_range():
     _fails(_C2H6_GEOMETRY.replace("top: [0, 2, 3, 4]", "top: [0, 2, 3, 9]"),
            r"torsions\[0\].top: \[0, 2, 3, 9\] is not a list of distinct atom indices \(0 to 7")
+
+
+# ---------------------------------------------------------------------------
+# Acceptance: species the project has never seen (not in species/)
+# ---------------------------------------------------------------------------
+
+#: X ¹Σ⁺ constants ωe, ωexe, Be, αe, De, D0 [cm-1]: Huber & Herzberg (1979), values from memory
+_UNSEEN_DIATOMICS = {
+    "HF": ("{H: 1, F: 1}", 4138.32, 89.88, 20.9557, 0.798, 0.00215, 47333),
+    "HCL": ("{H: 1, Cl: 1}", 2990.95, 52.82, 10.5934, 0.3072, 5.32e-4, 35760),  # H35Cl
+    "SIO": ("{Si: 1, O: 1}", 1241.55, 5.966, 0.7267512, 0.005041, 1.0e-6, 66600),
+}
+
+
+@pytest.mark.parametrize("name", list(_UNSEEN_DIATOMICS))
+def test_unseen_diatomic_by_constants(name):
+    """S298 ± 0.05 J/mol/K and Cp ± 0.6 % (298–2000 K) of NASA Glenn data (nasa_gas.yaml)."""
+    formula, we, wexe, be, ae, de, d0 = _UNSEEN_DIATOMICS[name]
+    text = f"""
+name: {name}
+formula: {formula}
+shape: linear
+symmetry: 1
+diatomic: {{omega_e: {we}, omega_e_x_e: {wexe}, B_e: {be}, alpha_e: {ae}, D_e: {de}, dissociation: {d0}}}
+formation: {{enthalpy: 0.0}}
+sources: ["Huber & Herzberg 1979, from memory"]
+"""
+    sp, _ = parse_species(text.encode(), f"{name}.yaml")
+    ref = _cantera("nasa_gas.yaml")[name].thermo
+    T = T_CHECK[T_CHECK >= ref.min_temp]
+    t = thermo_table(sp, T)
+    assert t.s298 == pytest.approx(ref.s(298.15) / 1e3, abs=0.05)
+    rel = t.cp / (np.array([ref.cp(x) for x in T]) / 1e3) - 1
+    assert np.max(np.abs(rel)) < 0.006, np.round(100 * rel, 3)
+
+
+# acetaldehyde: geometry (r_CC 1.501, r_CO 1.216, r_CH 1.114/1.086 Å, ∠CCO 123.9°, ∠CCH 115.3°,
+# ∠HCC(methyl) 110°), fundamentals (Shimanouchi NSRDS-NBS 39), CH3 barrier V3 = 400 cm-1 — all from memory
+_CH3CHO = """name: CH3CHO
+formula: {C: 2, H: 4, O: 1}
+shape: nonlinear
+symmetry: 1
+rotor:
+  geometry:
+    - [C, 0.0, 0.0, 0.0]
+    - [C, 1.501, 0.0, 0.0]
+    - [O, 2.179, 1.009, 0.0]
+    - [H, 1.977, -1.007, 0.0]
+    - [H, -0.3714, 1.0205, 0.0]
+    - [H, -0.3714, -0.5103, 0.8838]
+    - [H, -0.3714, -0.5103, -0.8838]
+vibrations:
+  frequencies: [3005, 2917, 2822, 1743, 1441, 1400, 1352, 1113, 919, 509, 2967, 1420, 867, 763, 150]
+torsions:
+  - {replaces: 150, barrier: 400, barrier_unit: cm-1, periodicity: 3, symmetry: 3, top: [0, 4, 5, 6], axis: [0, 1]}
+formation: {enthalpy: -166.0}
+sources: ["test"]
+"""
+
+
+def test_unseen_hindered_ch3_rotor():
+    """CH3CHO with a hindered CH3 rotor (Pitzer reduced moment from the geometry):
+    S298 within 0.3 J/mol/K and Cp within 2 % (298–700 K), 3 % (1000 K) of GRI-Mech 3.0 thermo."""
+    sp, _ = parse_species(_CH3CHO.encode(), "CH3CHO.yaml")
+    # F = ħ²/2I ≈ 7.6 cm-1 for the acetaldehyde methyl top (microwave analyses, from memory)
+    F = C.hbar**2 / (2 * sp.torsions[0].moment) / (C.h * C.c * 100)  # [cm-1]
+    assert F == pytest.approx(7.6, abs=0.3)
+    T = np.array([298.15, 400.0, 500.0, 700.0, 1000.0])
+    t = thermo_table(sp, T)
+    assert t.s298 == pytest.approx(ref_s("gri30.yaml", "CH3CHO", 298.15), abs=0.3)
+    rel = t.cp / ref_cp("gri30.yaml", "CH3CHO", T) - 1
+    assert np.max(np.abs(rel[:-1])) < 0.02 and abs(rel[-1]) < 0.03
