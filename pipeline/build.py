@@ -51,6 +51,7 @@ from pipeline.cache import (
     sha256_bytes, sha256_json, species_files, used_code_files,
 )
 from pipeline.diagnostics import Diagnostic, InputError
+from pipeline.plots import available as plots_available  # stdlib only: plots appear once matplotlib is installed
 
 EXIT_OK, EXIT_DATA = 0, 1
 
@@ -195,7 +196,7 @@ class Inputs:
         self.code = code_fingerprint(files)
         self.build_key = sha256_json(
             [FORMAT, __version__, self.code, self.settings_sha, self.flags,
-             [(name, sha) for name, _, _, sha in self.files]]
+             [(name, sha) for name, _, _, sha in self.files], plots_available()]
         )
 
     def entry_key(self, name: str, sha: str, settings_key: dict) -> str:
@@ -392,6 +393,10 @@ def _plan(inputs: Inputs, out: Path, cache: Cache | None, *, jobs: int | None, s
     glob = settings.replace(**inputs.flags)
     _check_flags(glob, inputs.flags)
     skey = {**settings.model_key(), "plots": settings.plots}
+    if glob.plots:  # plot bytes depend on the drawing library (and on whether it is there)
+        from pipeline.plots import engine
+
+        skey["plot_engine"] = engine()
     plan = Plan()
     plan.errors, plan.warnings = [], []
     by_file: dict[str, dict] = {}
