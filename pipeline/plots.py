@@ -21,9 +21,6 @@ import io
 import sys
 from pathlib import Path
 
-import numpy as np
-from scipy import constants as C
-
 #: page size [in] and resolution [dots per inch] of every picture
 FIGSIZE = (11.0, 7.5)
 DPI = 100
@@ -40,7 +37,24 @@ def available() -> bool:
     """True if matplotlib can be imported (the ``plot`` extra is installed)."""
     import importlib.util
 
+    if "matplotlib" in sys.modules:  # imported already (or blocked: None)
+        return sys.modules["matplotlib"] is not None
     return importlib.util.find_spec("matplotlib") is not None
+
+
+def engine() -> str:
+    """The drawing library and its version (part of the build's cache key), or "" without it.
+
+    Read from the installed package's metadata: matplotlib is not imported.
+    """
+    if not available():
+        return ""
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return f"matplotlib {version('matplotlib')}"
+    except PackageNotFoundError:  # importable but not installed as a distribution
+        return "matplotlib"
 
 
 def _mpl():
@@ -98,6 +112,8 @@ def _fit_values(fit, T):
 
 def _reference_values(reference, T):
     """(label, {prop: (T, values)}, as_points) of a reference fit or reference points."""
+    import numpy as np
+
     if reference is None:
         return None
     if hasattr(reference, "cp_r"):  # a Nasa7Fit
@@ -136,6 +152,9 @@ def render_plot(table, fit, uncertainty=None, reference=None, title: str | None 
 
     Raises :class:`PlotsUnavailable` without matplotlib.
     """
+    import numpy as np
+    from scipy import constants as C
+
     matplotlib, Figure, Canvas = _mpl()
     T = np.asarray(table.T, dtype=float)
     fitted = _fit_values(fit, T)
@@ -198,6 +217,8 @@ def render_comparison(name: str, T, old, new, old_label: str = "old", new_label:
     ``old`` and ``new`` are :class:`~pipeline.nasa7.Nasa7Fit` (either may be
     None for an added or removed species); G° on the ΔfH°298 scale [kJ/mol].
     """
+    import numpy as np
+
     matplotlib, Figure, Canvas = _mpl()
     T = np.asarray(T, dtype=float)
     with _style(matplotlib):
@@ -251,6 +272,8 @@ def write_comparisons(changes, old, new, directory, old_label: str = "old", new_
     form) in the order of ``changes``.  Raises :class:`PlotsUnavailable`
     without matplotlib.
     """
+    import numpy as np
+
     from pipeline.cache import write_atomic
 
     _mpl()

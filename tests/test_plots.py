@@ -127,3 +127,108 @@ def test_without_matplotlib(monkeypatch, capsys, tmp_path):
     assert main(["plot", "OH", "--species", str(SPECIES_DIR), "-o", str(tmp_path / "x.png")]) == 1
     assert "statherm[plot]" in capsys.readouterr().err
     assert not (tmp_path / "x.png").exists()
+
+
+# --------------------------------------------------------------------------
+# The build: output/plots/, reproducible, only when on, only for changed species
+# --------------------------------------------------------------------------
+
+BUILD_SPECIES = ("Ar", "CO2", "HO2")
+
+
+def _db(tmp_path, settings: str | None = None):
+    import shutil
+
+    species = tmp_path / "species"
+    species.mkdir()
+    for name in BUILD_SPECIES:
+        shutil.copy2(SPECIES_DIR / f"{name}.yaml", species / f"{name}.yaml")
+    if settings is not None:
+        (species / "statherm.yaml").write_text(settings)
+    return species
+
+
+def _record_names(species) -> list[str]:
+    from pipeline.species import load_database
+
+    return sorted(f"{sp.name}.png" for sp in load_database(species)[0])
+
+
+def _build(species, out, *flags):
+    from buildkit import run
+
+    return run("build", "--species", str(species), "--out", str(out), *flags)
+
+
+def _links(report: str) -> list[str]:
+    import re
+
+    return [m.group(1) or m.group(2) for m in re.finditer(r"\]\(<([^>]+)>\)|\]\(([^)<]+)\)", report)]
+
+
+def _plots(out):
+    folder = out / "plots"
+    return {p.name: p.read_bytes() for p in sorted(folder.iterdir())} if folder.is_dir() else {}
+
+
+def test_build_writes_plots_only_when_on(tmp_path):
+    species = _db(tmp_path)
+    rc, _, err = _build(species, tmp_path / "off")
+    assert rc == 0, err
+    assert _plots(tmp_path / "off") == {}
+    rc, _, err = _build(species, tmp_path / "on", "--plots")
+    assert rc == 0, err
+    assert sorted(_plots(tmp_path / "on")) == _record_names(species)
+
+
+def test_two_clean_builds_give_identical_plots(tmp_path):
+    species = _db(tmp_path, "plots: true\n")
+    for out in ("a", "b"):
+        rc, _, err = _build(species, tmp_path / out)
+        assert rc == 0, err
+    a, b = _plots(tmp_path / "a"), _plots(tmp_path / "b")
+    assert sorted(a) == _record_names(species) and a == b
+    # every species' plot is linked from the report, and every link resolves
+    links = _links((tmp_path / "a" / "REPORT.md").read_text())
+    assert sorted(link for link in links if link.startswith("plots/")) == [f"plots/{n}" for n in sorted(a)]
+    for link in links:
+        assert (tmp_path / "a" / link).is_file(), link
+
+
+def test_plot_rewritten_only_for_the_changed_species(tmp_path):
+    from buildkit import edit, snapshot
+
+    species = _db(tmp_path, "plots: true\n")
+    out = tmp_path / "out"
+    assert _build(species, out)[0] == 0
+    before = snapshot(out)
+    edit(species / "CO2.yaml", "uncertainty: 0.13", "uncertainty: 0.5")
+    rc, _, err = _build(species, out)
+    assert rc == 0, err
+    after = snapshot(out)
+    moved = {rel for rel in after if after[rel] != before.get(rel)}
+    assert "plots/CO2.png" in moved  # the title quotes u(G°)
+    assert not {"plots/AR.png", "plots/HO2.png"} & moved
+    assert {rel for rel in after if rel.startswith("plots/")} == {f"plots/{n}" for n in _record_names(species)}
+
+
+def test_build_without_matplotlib_says_so_once_and_links_nothing(tmp_path, monkeypatch):
+    species = _db(tmp_path, "plots: true\n")
+    out = tmp_path / "out"
+    with monkeypatch.context() as m:
+        m.setitem(sys.modules, "matplotlib", None)
+        rc, _, err = _build(species, out)
+        assert rc == 0, err
+        assert err.count("statherm[plot]") == 1, err
+        assert _plots(out) == {}
+        assert not [link for link in _links((out / "REPORT.md").read_text()) if link.startswith("plots/")]
+    # with matplotlib back, the next build draws them (the cache key knows the drawing library)
+    rc, _, err = _build(species, out)
+    assert rc == 0, err
+    assert sorted(_plots(out)) == _record_names(species)
+
+
+def test_bundled_database_switches_plots_on():
+    from pipeline.settings import load_settings
+
+    assert load_settings(SPECIES_DIR).plots is True
