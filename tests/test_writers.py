@@ -7,7 +7,6 @@ Reference coefficients: the NASA TM-4513-form data that cantera ships —
 
 from __future__ import annotations
 
-import functools
 import io
 import json
 import random
@@ -16,12 +15,12 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from refdata import ROOT, SPECIES_DIR
+from refdata import ROOT
+from writerkit import cantera_fits, small_build
 
 from pipeline import __version__
 from pipeline.nasa7 import Nasa7Fit
 from pipeline.readers import read_records
-from pipeline.settings import Settings
 from pipeline.thermo import T_REF
 from pipeline.writers import assemble, printed_fit, record_text, species_fragments
 from pipeline.writers.rounding import CP_BAR, H_S_BAR, round_sig
@@ -29,39 +28,6 @@ from pipeline.writers.rounding import CP_BAR, H_S_BAR, round_sig
 #: the bars of the writers issue (item 2): as printed, H and S at 298.15 K and at Tmid
 #: within 1e-9, Cp at Tmid within 1e-8, relative to max(|value|, 1) of Cp/R, H/RT, S/R
 BARS = {"cp_r": CP_BAR, "h_rt": H_S_BAR, "s_r": H_S_BAR}
-SMALL = ("Ar", "CH4", "CO2", "H2O", "OH", "NO", "CH3", "H2O2")
-
-
-def cantera_fits(source: str) -> list[Nasa7Fit]:
-    """The two-range NASA7 species of a cantera data file as Nasa7Fit (charge from 'E')."""
-    import cantera as ct
-
-    out = []
-    for sp in ct.Species.list_from_file(source):
-        c = sp.thermo.coeffs
-        if type(sp.thermo).__name__ != "NasaPoly2" or len(c) != 15:
-            continue
-        comp = {el: int(round(n)) for el, n in sp.composition.items()}
-        charge = -comp.pop("E", 0)
-        out.append(Nasa7Fit(sp.name, tuple(comp.items()), sp.thermo.min_temp, float(c[0]), sp.thermo.max_temp,
-                            tuple(c[8:15]), tuple(c[1:8]), charge=charge))
-    return out
-
-
-@functools.lru_cache(maxsize=None)
-def small_build():
-    """species, fine tables, fits, fragments of a few bundled species under the default settings."""
-    from pipeline.fit import fit_options, fit_tables
-    from pipeline.species import load_species
-    from pipeline.thermo import temperature_grid, thermo_table
-
-    settings = Settings()
-    species = [load_species(SPECIES_DIR / f"{n}.yaml", display=f"species/{n}.yaml")[0] for n in SMALL]
-    tables = [thermo_table(sp, temperature_grid(settings.tmin, settings.tmax, settings.grid_step),
-                           settings.pressure_pa) for sp in species]
-    fits = fit_tables(tables, [fit_options(sp, settings) for sp in species])
-    frags = [species_fragments(sp, t, f, settings) for sp, t, f in zip(species, tables, fits)]
-    return settings, species, tables, fits, frags
 
 
 def as_printed(fit: Nasa7Fit) -> Nasa7Fit:
