@@ -180,6 +180,14 @@ for _j in range(5):
 _BINOM = np.array([[math.comb(k, j) for j in range(5)] for k in range(5)], dtype=float)
 
 
+def _polymul(a, b):
+    """Row-wise product of polynomials given by coefficient arrays (R, 5) (degree ≤ 4 in total)."""
+    out = np.zeros_like(a)
+    for i in range(5):
+        out[:, i:] += a[:, i : i + 1] * b[:, : 5 - i]
+    return out
+
+
 class _Basis:
     """The pieces of the design that depend only on the grid and the range ends.
 
@@ -196,6 +204,7 @@ class _Basis:
         self.u = self._u(self.T)
         self.C = np.polynomial.chebyshev.chebvander(self.u, 4)
         self.P = self.C[:, _IU[0]] * self.C[:, _IU[1]]
+        self.CT = np.ascontiguousarray(self.C.T)
         K = np.zeros((5, 5))
         for j in range(5):
             coef = Chebyshev.basis(j, domain=[self.xl, self.xh]).convert(kind=Polynomial).coef
@@ -209,6 +218,7 @@ class _Basis:
         b = object.__new__(_Basis)
         b.__dict__.update(self.__dict__)
         b.T, b.u, b.C, b.P = self.T[idx], self.u[idx], self.C[idx], self.P[idx]
+        b.CT = np.ascontiguousarray(b.C.T)
         return b
 
     def mask(self, tmid):
@@ -216,19 +226,41 @@ class _Basis:
         return (self.T[None, :] > np.asarray(tmid)[:, None]).astype(float)
 
     def qmap(self, tmid, second_derivative):
-        """(R, nq, 5): Chebyshev coefficients of (u − u_mid)^k, k = 2, 3, 4 (or 3, 4)."""
+        """(R, nq, 5): Chebyshev coefficients (in u) of the high-range corrections.
+
+        q_j(u) = (u − u_mid)^m T_j(s), s = (2u − u_mid − 1)/(1 − u_mid) ∈ [−1, 1] on
+        the high range, with m = 2, j = 0, 1, 2 (m = 3, j = 0, 1 with the
+        second-derivative option): a double (triple) root at Tmid, and
+        Chebyshev factors that keep the columns far from collinear.
+        """
         um = self._u(np.asarray(tmid, dtype=float))
-        ks = (3, 4) if second_derivative else (2, 3, 4)
-        mono = np.zeros((um.size, len(ks), 5))
-        for i, k in enumerate(ks):
-            for j in range(k + 1):
-                mono[:, i, j] = _BINOM[k, j] * (-um) ** (k - j)
-        return mono @ _MONO_TO_CHEB
+        m, nq = (3, 2) if second_derivative else (2, 3)
+        one = np.zeros((um.size, 5))
+        one[:, 0] = 1.0
+        lin = np.zeros((um.size, 5))
+        lin[:, 0], lin[:, 1] = -um, 1.0  # u − u_mid
+        sv = np.zeros((um.size, 5))
+        sv[:, 0], sv[:, 1] = -(um + 1) / (1 - um), 2 / (1 - um)  # s(u)
+        root = one
+        for _ in range(m):
+            root = _polymul(root, lin)
+        cheb = [one, sv]
+        while len(cheb) < nq:
+            cheb.append(2 * _polymul(sv, cheb[-1]) - cheb[-2])
+        mono = np.stack([_polymul(root, cheb[j]) for j in range(nq)], axis=1)
+        return np.einsum("rij,jk->rik", mono, _MONO_TO_CHEB)
 
     def design(self, tmid, second_derivative):
         """Design matrix B (n, p) of one Tmid: Cp/R on the grid = B θ."""
         q = self.qmap([tmid], second_derivative)[0]
         return np.hstack([self.C, self.mask([tmid])[0][:, None] * (self.C @ q.T)])
+
+
+def _mm(a, b):
+    """a @ b for 2-D arrays, each output row summed in a fixed order whatever the
+    number of rows (BLAS picks kernels by shape; a species' result must not depend
+    on which other species share the batch)."""
+    return np.einsum("ij,jk->ik", a, b)
 
 
 def _unpack(F):
@@ -239,17 +271,26 @@ def _unpack(F):
     return out
 
 
-def _normal(basis, v, inv, mask, Mq):
-    """Weighted normal equations G θ = rhs (R, p, p), (R, p) with w_i = v_i y_i.
+def _normal(P, Cb, v, inv, mask, Mq, d, mm=None):
+    """Weighted normal equations G δ = rhs (R, p, p), (R, p) with w_i = v_i y_i.
 
-    Minimising Σ_i w_i r_i², r_i = (Bθ)_i / y_i − 1, gives
-    G = Σ_i (v_i / y_i) b_i b_iᵀ and rhs = Σ_i v_i b_i, with b_i = [c_i, m_i Mq c_i].
+    Minimising Σ_i w_i r_i², r_i = (B(θ + δ))_i / y_i − 1, for the correction δ
+    to parameters θ whose residual is d = y − Bθ gives
+    G = Σ_i (v_i / y_i) b_i b_iᵀ and rhs = Σ_i (v_i / y_i) d_i b_i, with
+    b_i = [c_i, m_i Mq c_i]; ``P`` holds the products c_i c_iᵀ (15 columns, maybe
+    zero-padded), ``Cb`` the c_i.  Solving for the correction from the true
+    residual is one step of iterative refinement in every Lawson iteration:
+    the normal matrix's rounding then limits the size of the *change*, not of
+    the solution (Björck, Numerical Methods for Least Squares Problems, SIAM
+    1996, §2.9).
     """
+    mm = mm or _mm
     a = v * inv
-    F = _unpack(a @ basis.P)
-    Fm = _unpack((a * mask) @ basis.P)
-    g = v @ basis.C
-    gm = (v * mask) @ basis.C
+    ad = a * d
+    F = _unpack(mm(a, P)[:, :15])
+    Fm = _unpack(mm(a * mask, P)[:, :15])
+    g = mm(ad, Cb)[:, :5]
+    gm = mm(ad * mask, Cb)[:, :5]
     FmMt = Fm @ Mq.transpose(0, 2, 1)
     nq = Mq.shape[1]
     G = np.empty((v.shape[0], 5 + nq, 5 + nq))
@@ -257,28 +298,8 @@ def _normal(basis, v, inv, mask, Mq):
     G[:, :5, 5:] = FmMt
     G[:, 5:, :5] = FmMt.transpose(0, 2, 1)
     G[:, 5:, 5:] = Mq @ FmMt
-    rhs = np.concatenate([g, (Mq @ gm[:, :, None])[:, :, 0]], axis=1)
+    rhs = np.concatenate([g, np.einsum("rkj,rj->rk", Mq, gm)], axis=1)
     return G, rhs
-
-
-def _spd_solve(G, b):
-    """Solve G z = b for a stack (R, p, p) of symmetric positive definite G (vectorised Cholesky)."""
-    p = G.shape[-1]
-    A = np.ascontiguousarray(np.moveaxis(G, 0, -1))  # (p, p, R)
-    rhs = np.ascontiguousarray(b.T)  # (p, R)
-    L = np.zeros_like(A)
-    tiny = 1e-300 + 1e-15 * np.abs(A[np.arange(p), np.arange(p)]).max(axis=0)
-    for j in range(p):
-        d = A[j, j] - (L[j, :j] ** 2).sum(axis=0)
-        L[j, j] = np.sqrt(np.maximum(d, tiny))
-        if j + 1 < p:
-            L[j + 1 :, j] = (A[j + 1 :, j] - (L[j + 1 :, :j] * L[j, :j][None]).sum(axis=1)) / L[j, j]
-    z = np.empty_like(rhs)
-    for j in range(p):
-        z[j] = (rhs[j] - (L[j, :j] * z[:j]).sum(axis=0)) / L[j, j]
-    for j in range(p - 1, -1, -1):
-        z[j] = (z[j] - (L[j + 1 :, j] * z[j + 1 :]).sum(axis=0)) / L[j, j]
-    return z.T
 
 
 @dataclass
@@ -295,60 +316,105 @@ class _Lawson:
 BLOCK_ELEMENTS = 32768
 
 
-def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None, power=1.0):
+def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None):
     """Minimax relative fits of the rows of y (R, n), row r with its own Tmid ``tmid[r]``.
 
-    Rows are processed in blocks of about BLOCK_ELEMENTS values (all
-    iterations of a block at once), which keeps the arrays in cache.
+    The rows stream through a block of fixed shape (about BLOCK_ELEMENTS grid
+    values): a row leaves its slot when its certified ratio error/bound is
+    ≤ 1 + tol (or after ``max_iter`` iterations) and the next row takes the
+    slot.  Every array operation is row-wise and the block shape never
+    changes, so a row's result does not depend on which rows share the batch
+    (builds are byte-reproducible whatever species are added).
     """
     R, n = y.shape
     tmid = np.asarray(tmid, dtype=float)
-    step = max(1, BLOCK_ELEMENTS // n)
-    if R <= step:
-        return _lawson_block(basis, y, tmid, sd, tol, max_iter, v0, power)
-    parts = [_lawson_block(basis, y[i : i + step], tmid[i : i + step], sd, tol, max_iter,
-                           None if v0 is None else v0[i : i + step], power) for i in range(0, R, step)]
-    return _Lawson(*(np.concatenate([getattr(p, f.name) for p in parts])
-                     for f in dataclasses.fields(_Lawson)))
+    res = _Lawson(np.zeros((R, 5)), np.zeros((R, 5)), np.full(R, np.inf), np.zeros(R),
+                  np.zeros((R, n)), np.zeros(R, dtype=int))
+    if R == 0:
+        return res
+    # Fixed, tile-friendly shapes for the matrix products: rows per block a multiple of 16,
+    # grid padded to a multiple of 16 with inert points (1/y = 0, weight 0), 16 and 8 columns.
+    npad = -(-n // 16) * 16
+    B = max(16, (BLOCK_ELEMENTS // npad) // 16 * 16)
+    P = np.zeros((npad, 16))
+    P[:n, :15] = basis.P
+    Cb = np.zeros((npad, 8))
+    Cb[:n, :5] = basis.C
+    CT = np.ascontiguousarray(Cb[:, :5].T)
 
+    def pad(a, fill):
+        out = np.full((R, npad), fill)
+        out[:, :n] = a
+        return out
 
-def _lawson_block(basis, y, tmid, sd, tol, max_iter, v0=None, power=1.0):
-    R, n = y.shape
-    inv = 1.0 / y
-    mask = basis.mask(tmid)
-    Mq = basis.qmap(tmid, sd)
-    v = inv / n if v0 is None else v0 / (v0 * y).sum(axis=1, keepdims=True)
-    res = _Lawson(np.zeros((R, 5)), np.zeros((R, 5)), np.full(R, np.inf), np.zeros(R), v.copy(),
-                  np.zeros(R, dtype=int))
-    act = np.arange(R)
-    ya, inva, maska, Mqa = y, inv, mask, Mq
-    for it in range(1, max_iter + 1):
-        G, rhs = _normal(basis, v, inva, maska, Mqa)
-        theta = _spd_solve(G, rhs)
+    y_all = pad(y, 1.0)
+    inv_all = pad(1.0 / y, 0.0)
+    mask_all = pad(basis.mask(tmid), 0.0)
+    Mq_all = basis.qmap(tmid, sd)
+    v_all = pad(inv_all[:, :n] / n if v0 is None else v0 / (v0 * y).sum(axis=1, keepdims=True), 0.0)
+    row = np.zeros(B, dtype=int)  # the row each slot works on
+    real = np.zeros(B, dtype=bool)  # False: the slot repeats a finished row (results discarded)
+    it = np.zeros(B, dtype=int)
+    best = np.full(B, np.inf)
+    bnd = np.zeros(B)
+    nxt = 0
+    ys, inv, mask, Mq, v, dres = (np.empty((B,) + a.shape[1:])
+                                  for a in (y_all, inv_all, mask_all, Mq_all, v_all, y_all))
+    theta = np.zeros((B, 5 + Mq_all.shape[1]))
+
+    def load(slots, rows, is_real):
+        nonlocal ys, inv, mask, Mq, v, dres, theta
+        row[slots] = rows
+        real[slots] = is_real
+        it[slots] = 0
+        best[slots] = np.inf
+        bnd[slots] = 0.0
+        ys[slots], inv[slots], mask[slots] = y_all[rows], inv_all[rows], mask_all[rows]
+        Mq[slots], v[slots] = Mq_all[rows], v_all[rows]
+        theta[slots] = 0.0
+        dres[slots] = y_all[rows]
+
+    first = np.arange(min(B, R))
+    load(np.arange(B), np.r_[first, np.zeros(B - first.size, dtype=int)], np.arange(B) < R)
+    nxt = first.size
+    while real.any():
+        G, rhs = _normal(P, Cb, v, inv, mask, Mq, dres, mm=np.matmul)
+        # a ridge at round-off level keeps degenerate rows (exact fits, zero weights) solvable
+        d = np.arange(G.shape[1])
+        G[:, d, d] += 1e-300 + 1e-15 * np.trace(G, axis1=1, axis2=2)[:, None]
+        theta = theta + np.linalg.solve(G, rhs[:, :, None])[:, :, 0]
         alpha = theta[:, :5]
-        beta = (theta[:, None, 5:] @ Mqa)[:, 0]
-        e = np.abs(alpha @ basis.C.T + maska * (beta @ basis.C.T) - ya)
-        ar = e * inva
+        beta = np.einsum("rk,rkj->rj", theta[:, 5:], Mq)
+        dres = ys - (alpha @ CT + mask * (beta @ CT))
+        e = np.abs(dres)
+        ar = e * inv
         err = ar.max(axis=1)
         wa = v * e
         den = wa.sum(axis=1)
-        bound = (wa * ar).sum(axis=1) / np.where(den > 0, den, 1.0)
-        better = err < res.error[act]
-        sel = act[better]
-        res.error[sel] = err[better]
-        res.alpha[sel] = alpha[better]
-        res.beta[sel] = beta[better]
-        res.bound[act] = np.maximum(res.bound[act], bound)
-        res.iterations[act] = it
-        done = (res.error[act] <= (1.0 + tol) * res.bound[act]) | (res.error[act] <= 1e-13)
-        v = (v * ar if power == 1.0 else v * ar**power) / np.where(den > 0, den, 1.0)[:, None]
-        v /= (v * ya).sum(axis=1, keepdims=True) if power != 1.0 else 1.0
-        res.weights[act] = v
-        if done.all() or it == max_iter:
-            break
-        if done.mean() > 0.2:  # drop the converged rows
-            keep = ~done
-            act, v, ya, inva, maska, Mqa = act[keep], v[keep], ya[keep], inva[keep], maska[keep], Mqa[keep]
+        safe = np.where(den > 0, den, 1.0)
+        bound = (wa * ar).sum(axis=1) / safe
+        it += 1
+        better = err < best
+        best = np.where(better, err, best)
+        bnd = np.maximum(bnd, bound)
+        v = v * ar / safe[:, None]  # Lawson: w ← w |r| / Σ w|r|, with v = w / y
+        rb = real & better
+        res.error[row[rb]] = err[rb]
+        res.alpha[row[rb]] = alpha[rb]
+        res.beta[row[rb]] = beta[rb]
+        finished = (it >= 2) & ((best <= (1.0 + tol) * bnd) | (best <= 1e-14)) | (it >= max_iter)
+        rf = np.flatnonzero(real & finished)
+        res.bound[row[rf]] = bnd[rf]
+        res.iterations[row[rf]] = it[rf]
+        res.weights[row[rf]] = v[rf, :n]
+        done_slots = np.flatnonzero(finished)
+        if done_slots.size:
+            take = min(R - nxt, done_slots.size)
+            load(done_slots[:take], np.arange(nxt, nxt + take), True)
+            nxt += take
+            rest = done_slots[take:]
+            if rest.size:  # nothing left to start: repeat the finished row, discard its results
+                load(rest, row[rest], False)
     # the bound is exact in exact arithmetic; at round-off level (exact fits) it may exceed the error
     res.bound = np.minimum(res.bound, res.error)
     return res
@@ -369,8 +435,8 @@ def _poly_int(a, T):
 def _coefficients(basis, alpha, beta, tmid, dhf298, s298):
     """Low and high seven-coefficient sets (R, 7) in kelvin units."""
     scale = _X ** np.arange(5)
-    lo5 = (alpha @ basis.K.T) / scale
-    hi5 = ((alpha + beta) @ basis.K.T) / scale
+    lo5 = _mm(alpha, basis.K.T) / scale
+    hi5 = _mm(alpha + beta, basis.K.T) / scale
     # make Cp/R continuity exact in floating point (a correction at round-off level)
     hi5[:, 0] += nasa7.cp_r(lo5.T, tmid) - nasa7.cp_r(hi5.T, tmid)
     h0, s0 = _poly_int(lo5, T_REF)
@@ -624,12 +690,12 @@ def _results(basis, y, tables, opts, keeps, sd, tmid, auto, res):
         "g_rt": _property_error(h_f - s_f, h_t - s_t, T, True),
     }
     # conditioning: the 1/Cp-scaled design matrix (unit weights), and evaluation of the monomials
-    G0, _ = _normal(basis, np.ones_like(y), 1.0 / y, basis.mask(tmid), basis.qmap(tmid, sd))
+    G0, _ = _normal(basis.P, basis.C, np.ones_like(y), 1.0 / y, basis.mask(tmid), basis.qmap(tmid, sd), y)
     ev = np.linalg.eigvalsh(G0)
     cond = np.sqrt(ev[:, -1] / np.maximum(ev[:, 0], 1e-300 * ev[:, -1]))
     Tp = T[None, :] ** np.arange(5)[:, None]  # (5, n)
     use_low = T[None, :] <= tmid[:, None]
-    terms = np.where(use_low, np.abs(low[:, :5]) @ Tp, np.abs(high[:, :5]) @ Tp)
+    terms = np.where(use_low, _mm(np.abs(low[:, :5]), Tp), _mm(np.abs(high[:, :5]), Tp))
     ev_cond = (terms / np.abs(cp_f)).max(axis=1)
     fits = []
     for k in range(S):
@@ -736,7 +802,9 @@ def fit_table(table, *, tlow: float = 200.0, tmid: float | str = "auto", thigh: 
 def _lp_limit(B, y) -> float:
     from scipy.optimize import linprog
 
-    A = B / y[:, None]
+    # the limit does not depend on the basis of the column space: an orthonormal one
+    # (QR of the scaled design) keeps the programme well conditioned for HiGHS
+    A = np.linalg.qr(B / y[:, None])[0] * math.sqrt(B.shape[0])
     n, p = A.shape
     ones = np.ones((n, 1))
     A_ub = np.block([[A, -ones], [-A, -ones]])
