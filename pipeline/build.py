@@ -386,7 +386,8 @@ def _in_shard(name: str, shard: tuple[int, int] | None) -> bool:
 
 
 def _plan(inputs: Inputs, out: Path, cache: Cache | None, *, jobs: int | None, shard=None,
-          keep_going: bool = False, verbosity: int = 1, progress: bool = False) -> Plan:
+          keep_going: bool = False, verbosity: int = 1, progress: bool = False,
+          since_last: bool = False) -> Plan:
     from pipeline.settings import load_settings
 
     settings = load_settings(inputs.dir)
@@ -407,6 +408,9 @@ def _plan(inputs: Inputs, out: Path, cache: Cache | None, *, jobs: int | None, s
         keys[disp] = key
         entry = cache.load_entry(key) if cache else None
         if entry is not None:
+            # the same file seen from another working folder: name it as the user does now
+            entry["file"] = disp
+            entry["warnings"] = [{**d, "file": disp} for d in entry["warnings"]]
             by_file[disp] = entry
         elif _in_shard(name, shard):
             todo.append((key, disp, data))
@@ -460,6 +464,8 @@ def _plan(inputs: Inputs, out: Path, cache: Cache | None, *, jobs: int | None, s
     from pipeline.writers import assemble
 
     files = dict(assemble([e["fragments"] for e in good], glob))
+    if since_last and glob.report_changes:
+        _note_changes_since(out, files)
     for e in good:
         extra = e.get("_extra")
         for rel, sha in e.get("files", {}).items():
@@ -517,6 +523,42 @@ def _changes(out: Path, files: dict[str, bytes], manifest: dict | None) -> tuple
     deletes = {rel for rel in old if rel not in files and (out / rel).exists()}
     deletes |= _leftovers(out, files)
     return writes, sorted(deletes)
+
+
+def _note_changes_since(out: Path, files: dict[str, bytes]) -> None:
+    """Open REPORT.md with what changed between the records on disk (the last build) and these.
+
+    Only with ``report_changes: true`` and a previous build in the cache; the
+    section is fenced (:mod:`pipeline.diff`) so that ``check`` can leave it out.
+    """
+    old_dat = out / "thermo.dat"
+    if "REPORT.md" not in files or "thermo.dat" not in files or not old_dat.is_file():
+        return
+    from pipeline.diff import since_last_build, with_since_last_build
+    from pipeline.readers import read_records
+
+    try:
+        old = read_records(old_dat)
+    except InputError:  # not ours to judge here: the build replaces it
+        return
+    new = read_records(files["thermo.dat"].decode("utf-8"), name="thermo.dat")
+    report = with_since_last_build(files["REPORT.md"].decode("utf-8"), since_last_build(old, new))
+    files["REPORT.md"] = report.encode("utf-8")
+
+
+def _ignore_changes_section(out: Path, files: dict[str, bytes], writes: dict[str, bytes]) -> None:
+    """``check``: REPORT.md's since-last-build section comes from the cache, not from the
+    inputs (a fresh clone has none), so REPORT.md is compared without it."""
+    if "REPORT.md" not in writes:
+        return
+    from pipeline.diff import strip_since_last_build
+
+    try:
+        disk = (out / "REPORT.md").read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError):
+        return
+    if strip_since_last_build(disk) == strip_since_last_build(files["REPORT.md"].decode("utf-8")):
+        del writes["REPORT.md"]
 
 
 def _leftovers(out: Path, files: dict[str, bytes]) -> set[str]:
@@ -607,7 +649,8 @@ def _build_locked(inputs, out, cache, t0, *, jobs, keep_going, verbosity, as_jso
         if verbosity > 1:
             print(f"statherm: {out.as_posix()} is up to date ({len(inputs.files)} species)", file=sys.stderr)
         return EXIT_OK
-    plan = _plan(inputs, out, cache, jobs=jobs, keep_going=keep_going, verbosity=verbosity, progress=progress)
+    plan = _plan(inputs, out, cache, jobs=jobs, keep_going=keep_going, verbosity=verbosity, progress=progress,
+                 since_last=manifest is not None)
     if plan.errors and not keep_going:
         _emit(plan.errors + plan.warnings, verbosity, as_json)
         files = len({d.file for d in plan.errors})
@@ -673,6 +716,7 @@ def _check(inputs: Inputs, out: Path, cache: Cache | None, verbosity: int, as_js
               f"{out.as_posix()} cannot be checked", file=sys.stderr)
         return EXIT_DATA
     writes, deletes = _changes(out, plan.files, manifest)
+    _ignore_changes_section(out, plan.files, writes)
     if not writes and not deletes:
         if cache:
             m = plan.manifest
@@ -691,39 +735,52 @@ def _check(inputs: Inputs, out: Path, cache: Cache | None, verbosity: int, as_js
 
 
 def _stale_reasons(inputs, out, plan, manifest, writes, deletes) -> list[Diagnostic]:
-    """Name why the output is stale: species files, settings, code — then the files."""
-    diags = []
-    now = {disp: sha for _, disp, _, sha in inputs.files}
-    recorded = (manifest or {}).get("inputs")
-    if recorded is None:
-        recorded = _recorded_inputs(out, plan)
+    """Name why the output is stale: species files, settings, code — then the files.
+
+    Species and model settings are compared through the provenance that
+    thermo.yaml records per species (species file, its sha256, tool version,
+    model options), on disk and in the fresh build, so this works without a
+    cache (a fresh clone in CI); the cache's manifest adds the settings file,
+    the flags and the code fingerprint.
+    """
+    diags: list[Diagnostic] = []
+    try:
+        on_disk = (out / "thermo.yaml").read_bytes()
+    except OSError:
+        on_disk = None
+    old, new = _provenance(on_disk), _provenance(plan.files.get("thermo.yaml"))
+    disp_of = {name: disp for name, disp, _, _ in inputs.files}
     explained = False
-    if recorded is not None:
-        for disp in sorted(now):
-            if disp not in recorded and now[disp] not in recorded.values():
+    moved: dict[str, tuple] = {}
+    if old is not None and new is not None:
+        for f in sorted(set(old) | set(new)):
+            disp = disp_of.get(f, (inputs.dir / f).as_posix())
+            if f not in old:
                 diags.append(Diagnostic(disp, "", "new species file, not yet in the output"))
-            elif disp in recorded and recorded[disp] != now[disp]:
-                diags.append(Diagnostic(disp, "", "changed since the output was built"))
-        for disp in sorted(set(recorded) - set(now)):
-            if recorded[disp] not in now.values():
+            elif f not in new:
                 diags.append(Diagnostic(disp, "", "removed, but still in the output"))
+            elif old[f].get("sha256") != new[f].get("sha256"):
+                diags.append(Diagnostic(disp, "", "changed since the output was built"))
+            else:
+                a, b = old[f].get("model") or {}, new[f].get("model") or {}
+                for k in sorted(set(a) | set(b)):
+                    if a.get(k) != b.get(k):
+                        moved.setdefault(k, (a.get(k), b.get(k)))
+                if old[f].get("tool_version") != new[f].get("tool_version"):
+                    moved.setdefault("tool version", (old[f].get("tool_version"), new[f].get("tool_version")))
         explained = bool(diags)
-    if manifest:
-        if manifest.get("settings_file") != inputs.settings_sha or manifest.get("flags") != inputs.flags:
-            old = {**manifest.get("settings", {}), **manifest.get("flags", {})}
-            new = {**plan.manifest["settings"], **inputs.flags}
-            moved = [f"{k}: {old.get(k)!r} → {new.get(k)!r}" for k in sorted(set(old) | set(new))
-                     if old.get(k) != new.get(k)]
-            diags.append(Diagnostic(inputs.settings_file, "",
-                                    "settings changed since the output was built"
-                                    + (f" ({'; '.join(moved)})" if moved else "")))
-            explained = True
-        if manifest.get("code") != inputs.code or manifest.get("version") != __version__:
-            diags.append(Diagnostic("pipeline/", "", "code changed since the output was built"))
-            explained = True
+    if moved or (manifest and (manifest.get("settings_file") != inputs.settings_sha
+                               or manifest.get("flags") != inputs.flags)):
+        text = "; ".join(f"{k}: {a!r} → {b!r}" for k, (a, b) in sorted(moved.items()))
+        diags.append(Diagnostic(inputs.settings_file, "",
+                                "settings changed since the output was built" + (f" ({text})" if text else "")))
+        explained = True
+    if manifest and (manifest.get("code") != inputs.code or manifest.get("version") != __version__):
+        diags.append(Diagnostic("pipeline/", "", "code changed since the output was built"))
+        explained = True
     if not explained:
-        diags.append(Diagnostic("pipeline/", "", "the species files are those the output was built from, "
-                                "so the settings or the code changed what a build writes"))
+        diags.append(Diagnostic("pipeline/", "", "the species files and model settings are those the output "
+                                "records, so the code (or a setting such as plots) changed what a build writes"))
     for rel in sorted(writes):
         what = "missing" if not (out / rel).exists() else "differs from a fresh build"
         diags.append(Diagnostic((out / rel).as_posix(), "", what))
@@ -732,25 +789,22 @@ def _stale_reasons(inputs, out, plan, manifest, writes, deletes) -> list[Diagnos
     return diags
 
 
-def _recorded_inputs(out: Path, plan: Plan) -> dict[str, str] | None:
-    """species file → sha256 as recorded in the output's own provenance (thermo.yaml), if any."""
-    path = out / "thermo.yaml"
-    if not path.is_file():
+def _provenance(data: bytes | None) -> dict[str, dict] | None:
+    """species file name → the provenance thermo.yaml records for it (None if unreadable)."""
+    if data is None:
         return None
-    try:
-        text = path.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError):
-        return None
-    known = {e["name"]: e for e in plan.entries}
-    import re
+    from pipeline.species import load_yaml
 
-    found = {}
-    for m in re.finditer(r"\b([0-9a-f]{64})\b", text):
-        found[m.group(1)] = True
-    recorded = {}
-    for name, e in known.items():
-        recorded[e["file"]] = e["sha256"] if e["sha256"] in found else "?"
-    return recorded
+    try:
+        doc = load_yaml(data.decode("utf-8"))
+        out = {}
+        for entry in doc["species"]:
+            prov = entry.get("provenance") or {}
+            if prov.get("species_file"):
+                out[prov["species_file"]] = prov
+        return out
+    except Exception:  # an older or foreign file: no provenance to compare
+        return None
 
 
 # --------------------------------------------------------------------------

@@ -1,0 +1,424 @@
+"""The database as a build: incremental, all-or-nothing, atomic, locked, sharded, checked."""
+
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import signal
+import sys
+import time
+from pathlib import Path
+
+import pytest
+
+from buildkit import SMALL, database, edit, popen, run, run_process, snapshot
+
+# --------------------------------------------------------------------------
+# incremental rebuilds
+# --------------------------------------------------------------------------
+
+
+def test_rebuild_of_unchanged_inputs_writes_nothing(tmp_path):
+    species, out = database(tmp_path)
+    before = snapshot(out)
+    rc, _, err = run("build", "--species", str(species), "--out", str(out))
+    assert rc == 0, err
+    assert snapshot(out) == before  # same bytes and same mtimes
+
+
+def test_no_op_rebuild_imports_no_numerics(tmp_path):
+    import subprocess
+
+    species, out = database(tmp_path)
+
+    from refdata import ROOT
+
+    proc = subprocess.run([sys.executable, "-X", "importtime", "-m", "pipeline", "build", "--species", str(species),
+                           "--out", str(out), "--verbose"], cwd=ROOT, capture_output=True, text=True)
+    assert proc.returncode == 0, proc.stderr
+    assert "up to date" in proc.stderr
+    imported = {line.split("|")[-1].strip() for line in proc.stderr.splitlines() if line.startswith("import time:")}
+    for heavy in ("numpy", "yaml", "scipy", "pandas", "jinja2", "pipeline.species", "pipeline.fit"):
+        assert heavy not in imported
+
+
+def test_one_edited_species_changes_only_its_files(tmp_path):
+    species, out = database(tmp_path)
+    before = snapshot(out)
+    edit(species / "CH4.yaml", "enthalpy: -74.52", "enthalpy: -74.00")
+    rc, _, err = run("build", "--species", str(species), "--out", str(out), "--verbose")
+    assert rc == 0, err
+    assert "1 computed" in err
+    after = snapshot(out)
+    assert set(after) == set(before)
+    changed = {rel for rel in after if after[rel] != before[rel]}
+    assert any("CH4" in Path(rel).name for rel in changed)
+    for rel in changed:  # the database files, and CH4's own files
+        assert "/" not in rel or "CH4" in Path(rel).name, rel
+    for rel in before:  # every other species' files keep their bytes and their mtime
+        if "/" in rel and "CH4" not in Path(rel).name:
+            assert after[rel] == before[rel], rel
+
+
+def test_removed_species_leaves_no_files(tmp_path):
+    species, out = database(tmp_path)
+    (species / "HO2.yaml").unlink()
+    rc, _, err = run("build", "--species", str(species), "--out", str(out))
+    assert rc == 0, err
+    assert not [rel for rel in snapshot(out) if "HO2" in Path(rel).name]
+    assert "HO2" not in (out / "thermo.dat").read_text()
+
+
+def test_rebuild_after_deleting_the_cache_gives_the_same_bytes_and_keeps_mtimes(tmp_path):
+    species, out = database(tmp_path)
+    before = snapshot(out)
+    shutil.rmtree(out / ".statherm-cache")
+    rc, _, err = run("build", "--species", str(species), "--out", str(out), "--verbose")
+    assert rc == 0, err
+    assert f"{len(SMALL)} computed" in err
+    assert snapshot(out) == before
+
+
+def test_jobs_and_shards_give_the_same_bytes(tmp_path):
+    species, out = database(tmp_path)
+    expected = {rel: b for rel, (b, _) in snapshot(out).items()}
+    for name, args in (("jobs", [["--jobs", "2"]]), ("shards", [["--shard", "1/2"], ["--shard", "2/2"], []])):
+        dest = tmp_path / name
+        for extra in args:
+            rc, _, err = run("build", "--species", str(species), "--out", str(dest), "--verbose", *extra)
+            assert rc == 0, err
+        if name == "shards":
+            assert "0 computed" in err  # the final build only assembles what the shards cached
+            assert not any(line.startswith("computed") for line in err.splitlines())
+        assert {rel: b for rel, (b, _) in snapshot(dest).items()} == expected
+
+
+def test_shard_writes_no_output(tmp_path):
+    species, _ = database(tmp_path)
+    dest = tmp_path / "fresh"
+    rc, _, err = run("build", "--species", str(species), "--out", str(dest), "--shard", "1/3")
+    assert rc == 0, err
+    assert snapshot(dest) == {}
+
+
+# --------------------------------------------------------------------------
+# settings precedence: flags > species fit: > statherm.yaml > defaults
+# --------------------------------------------------------------------------
+
+
+def _tmids(out: Path) -> dict[str, float]:
+    from pipeline.readers import read_records
+
+    return {f.name: f.tmid for f in read_records(out / "thermo.dat")}
+
+
+def test_settings_precedence(tmp_path):
+    species, out = database(tmp_path)
+    (species / "statherm.yaml").write_text("tmid: 1100\n", encoding="utf-8")
+    edit(species / "CO2.yaml", "sources:", "fit: {tmid: 1500}\nsources:")
+    rc, _, err = run("build", "--species", str(species), "--out", str(out))
+    assert rc == 0, err
+    tmid = _tmids(out)
+    assert tmid["CO2"] == 1500.0  # the species file beats statherm.yaml
+    assert tmid["H2O"] == 1100.0  # statherm.yaml beats the default (auto)
+    rc, _, err = run("build", "--species", str(species), "--out", str(out), "--tmid", "1300")
+    assert rc == 0, err
+    assert set(_tmids(out).values()) == {1300.0}  # the flag beats both
+
+
+def test_flag_outside_a_species_range_names_file_and_flag(tmp_path):
+    species, out = database(tmp_path)
+    before = snapshot(out)
+    rc, _, err = run("build", "--species", str(species), "--out", str(out), "--tmid", "7000")
+    assert rc == 1
+    assert "H2O.yaml: fit.tmid:" in err and "--tmid 7000" in err
+    assert "Traceback" not in err
+    assert snapshot(out) == before
+
+
+# --------------------------------------------------------------------------
+# all or nothing
+# --------------------------------------------------------------------------
+
+
+def test_bad_files_are_all_reported_and_nothing_is_written(tmp_path):
+    species, out = database(tmp_path)
+    before = snapshot(out)
+    edit(species / "CH4.yaml", "enthalpy: -74.52", "enthalpy: -74.00")  # a good change, not written either
+    (species / "bad1.yaml").write_text("name: X1\nformula: {Xq: 1}\n", encoding="utf-8")
+    (species / "bad2.yaml").write_text("- a list\n", encoding="utf-8")
+    rc, _, err = run("build", "--species", str(species), "--out", str(out))
+    assert rc == 1
+    assert "bad1.yaml: formula.Xq:" in err and "bad2.yaml:" in err
+    assert "left unchanged" in err
+    assert snapshot(out) == before
+
+
+def test_keep_going_writes_the_good_species(tmp_path):
+    species, out = database(tmp_path)
+    edit(species / "CH4.yaml", "enthalpy: -74.52", "enthalpy: -74.00")
+    (species / "bad.yaml").write_text("name: X1\n", encoding="utf-8")
+    rc, _, err = run("build", "--species", str(species), "--out", str(out), "--keep-going")
+    assert rc == 1, err
+    assert "bad.yaml: formula: missing required key" in err
+    from pipeline.readers import read_records
+
+    names = {f.name for f in read_records(out / "thermo.dat")}
+    assert names == {"AR", "CH4", "CO2", "H2O", "HO2"}
+    rc, _, _ = run("check", "--species", str(species), "--out", str(out))
+    assert rc == 1  # a database with a failed species is not up to date
+
+
+def test_json_diagnostics(tmp_path):
+    species, out = database(tmp_path)
+    (species / "bad.yaml").write_text("name: X1\nformula: {H: 1}\nshape: atom\nsymmetry: 0\n", encoding="utf-8")
+    rc, _, err = run("--json", "build", "--species", str(species), "--out", str(out))
+    assert rc == 1
+    doc = json.loads(err[: err.rindex("]") + 1])
+    keys = {(Path(d["file"]).name, d["key"]) for d in doc if d["severity"] == "error"}
+    assert ("bad.yaml", "symmetry") in keys and ("bad.yaml", "formation") in keys
+
+
+# --------------------------------------------------------------------------
+# check
+# --------------------------------------------------------------------------
+
+
+def test_check_names_what_is_stale(tmp_path):
+    species, out = database(tmp_path)
+    args = ("check", "--species", str(species), "--out", str(out))
+    assert run(*args)[0] == 0
+    edit(species / "H2O.yaml", "enthalpy: -241.826", "enthalpy: -241.800")
+    rc, _, err = run(*args)
+    assert rc == 1
+    assert "H2O.yaml: changed since the output was built" in err
+    (species / "statherm.yaml").write_text("tmid: 1200\n", encoding="utf-8")
+    rc, _, err = run(*args)
+    assert rc == 1
+    assert "statherm.yaml: settings changed" in err and "tmid: 'auto' → 1200" in err
+    assert run("build", "--species", str(species), "--out", str(out), "--quiet")[0] == 0
+    assert run(*args) == (0, "", "")
+
+
+def test_check_without_a_cache_compares_bytes(tmp_path):
+    """A fresh clone (CI) has output/ but no cache: check rebuilds in memory and compares."""
+    species, out = database(tmp_path)
+    shutil.rmtree(out / ".statherm-cache")
+    before = snapshot(out)
+    args = ("check", "--species", str(species), "--out", str(out))
+    assert run(*args)[0] == 0
+    assert snapshot(out) == before
+    shutil.rmtree(out / ".statherm-cache")
+    edit(species / "CO2.yaml", "enthalpy: -393.51", "enthalpy: -393.00")
+    rc, _, err = run(*args)
+    assert rc == 1
+    assert "CO2.yaml: changed since the output was built" in err  # from thermo.yaml's provenance
+    assert "thermo.dat: differs from a fresh build" in err
+    assert snapshot(out) == before  # check writes no output
+
+
+def test_check_names_code_changes(tmp_path, monkeypatch):
+    """A code change that alters what a build writes is reported as such (simulated by
+    changing the fingerprint and the assembled bytes)."""
+    import pipeline.build
+    import pipeline.writers
+
+    species, out = database(tmp_path)
+    real = pipeline.writers.assemble
+    monkeypatch.setattr(pipeline.build, "code_fingerprint", lambda files=None: "0" * 64)
+    monkeypatch.setattr(pipeline.writers, "assemble",
+                        lambda frags, s: {k: v + b"\n" if k == "thermo.dat" else v for k, v in real(frags, s).items()})
+    rc, _, err = run("check", "--species", str(species), "--out", str(out))
+    assert rc == 1
+    assert "pipeline/: code changed" in err and "thermo.dat: differs" in err
+
+
+def test_check_and_build_report_missing_species_folder(tmp_path):
+    for cmd in ("build", "check"):
+        rc, _, err = run(cmd, "--species", str(tmp_path / "nope"), "--out", str(tmp_path / "out"))
+        assert rc == 1 and "nope: does not exist" in err and "Traceback" not in err
+
+
+# --------------------------------------------------------------------------
+# faults: SIGKILL, lock, unwritable output
+# --------------------------------------------------------------------------
+
+FAULT_POINTS = ("writing-temporaries", "before-journal", "after-journal", "moving", "before-journal-removal")
+
+
+def _changed_database(tmp_path):
+    """A built database, and what it becomes once every species is edited and rebuilt."""
+    species, out = database(tmp_path)
+    old = {rel: b for rel, (b, _) in snapshot(out).items()}
+    for name in SMALL:
+        text = (species / f"{name}.yaml").read_text(encoding="utf-8")
+        (species / f"{name}.yaml").write_text(text + "notes: edited\n", encoding="utf-8")
+    edit(species / "HO2.yaml", "enthalpy: 12.26", "enthalpy: 12.00")
+    ref = tmp_path / "reference"
+    rc, _, err = run("build", "--species", str(species), "--out", str(ref), "--quiet")
+    assert rc == 0, err
+    new = {rel: b for rel, (b, _) in snapshot(ref).items()}
+    assert new != old
+    return species, out, old, new
+
+
+@pytest.mark.parametrize("point", FAULT_POINTS)
+def test_sigkill_at_each_step_leaves_old_or_new_files(tmp_path, point):
+    species, out, old, new = _changed_database(tmp_path)
+    proc = run_process("build", "--species", str(species), "--out", str(out), env={"STATHERM_FAULT": point})
+    assert proc.returncode == -signal.SIGKILL
+    now = {rel: b for rel, (b, _) in snapshot(out).items()}
+    for rel, data in now.items():  # never a torn or foreign file
+        assert data in (old.get(rel), new.get(rel)), rel
+    if point in ("writing-temporaries", "before-journal"):
+        assert now == old  # killed before the commit: the previous output, untouched
+    rc, _, err = run("check", "--species", str(species), "--out", str(out))  # completes a committed build
+    if point in ("writing-temporaries", "before-journal"):
+        assert rc == 1
+        assert run("build", "--species", str(species), "--out", str(out), "--quiet")[0] == 0
+    else:
+        assert rc == 0, err
+    assert {rel: b for rel, (b, _) in snapshot(out).items()} == new
+    assert not os.listdir(out / ".statherm-cache" / "tmp")
+
+
+def test_sigkill_at_random_moments(tmp_path):
+    """Kill real builds of a changed database at staggered moments; every file stays whole."""
+    species, out, old, new = _changed_database(tmp_path)
+    saved = tmp_path / "saved"
+    shutil.copytree(out, saved, ignore=shutil.ignore_patterns(".statherm-cache"))
+    t0 = time.monotonic()
+    assert run_process("build", "--species", str(species), "--out", str(tmp_path / "timing")).returncode == 0
+    full = time.monotonic() - t0
+    for fraction in (0.3, 0.5, 0.7, 0.85, 0.95):
+        shutil.rmtree(out)
+        shutil.copytree(saved, out)  # the old output, no cache: the build recomputes and rewrites
+        proc = popen("build", "--species", str(species), "--out", str(out))
+        time.sleep(fraction * full)
+        proc.send_signal(signal.SIGKILL)
+        proc.communicate()
+        for rel, (data, _) in snapshot(out).items():
+            assert data in (old.get(rel), new.get(rel)), (fraction, rel)
+        assert run("build", "--species", str(species), "--out", str(out), "--quiet")[0] == 0
+        assert {rel: b for rel, (b, _) in snapshot(out).items()} == new
+
+
+def test_two_builds_into_one_folder_are_serialised(tmp_path):
+    from pipeline.cache import Lock
+
+    species, out = database(tmp_path)
+    edit(species / "CH4.yaml", "enthalpy: -74.52", "enthalpy: -74.00")
+    with Lock(out, quiet=True):
+        proc = popen("build", "--species", str(species), "--out", str(out))
+        time.sleep(1.5)
+        assert proc.poll() is None  # waiting for the lock
+        unchanged = snapshot(out)
+    _, err = proc.communicate(timeout=120)
+    assert proc.returncode == 0, err
+    assert "waiting for another build" in err
+    assert unchanged != snapshot(out)
+
+
+def test_unusable_output_folder_gives_a_clear_error(tmp_path, monkeypatch):
+    species, _ = database(tmp_path)
+    afile = tmp_path / "afile"
+    afile.write_text("x")
+    cases = [
+        (tmp_path / "no" / "such" / "out", "cannot be created: its parent folder"),
+        (afile, "is not a folder"),
+    ]
+    for out, message in cases:
+        rc, _, err = run("build", "--species", str(species), "--out", str(out))
+        assert rc == 1 and message in err and "Traceback" not in err, err
+    ro = tmp_path / "ro"
+    ro.mkdir()
+    if os.geteuid() != 0:  # permission bits do not stop root
+        ro.chmod(0o555)
+        rc, _, err = run("build", "--species", str(species), "--out", str(ro))
+        ro.chmod(0o755)
+        assert rc == 1 and "cannot write here (Permission denied)" in err
+    import errno
+
+    def read_only(self, *a, **k):
+        raise OSError(errno.EROFS, os.strerror(errno.EROFS), str(self))
+
+    monkeypatch.setattr(Path, "mkdir", read_only)
+    rc, _, err = run("build", "--species", str(species), "--out", str(ro))
+    assert rc == 1 and f"cannot write here ({os.strerror(errno.EROFS)})" in err and "Traceback" not in err
+
+
+# --------------------------------------------------------------------------
+# messages and progress
+# --------------------------------------------------------------------------
+
+
+def test_quiet_build_says_nothing_and_progress_only_when_asked(tmp_path):
+    species, out = database(tmp_path)
+    shutil.rmtree(out / ".statherm-cache")
+    rc, stdout, err = run("build", "--species", str(species), "--out", str(out), "--quiet")
+    assert (rc, stdout, err) == (0, "", "")
+    shutil.rmtree(out / ".statherm-cache")
+    rc, _, err = run("build", "--species", str(species), "--out", str(out))
+    assert rc == 0 and "statherm build:" not in err  # not a terminal: no progress bar
+    shutil.rmtree(out / ".statherm-cache")
+    rc, _, err = run("build", "--species", str(species), "--out", str(out), "--progress")
+    assert rc == 0 and f"statherm build: {len(SMALL)}/{len(SMALL)}" in err
+
+
+# --------------------------------------------------------------------------
+# show (git textconv)
+# --------------------------------------------------------------------------
+
+
+def test_show_tabulates_every_species(tmp_path):
+    from scipy import constants as C
+
+    _, out = database(tmp_path)
+    rc, text, err = run("show", str(out / "thermo.dat"))
+    assert rc == 0, err
+    for name in ("AR", "CH4", "CO2", "H2O", "HO2"):
+        assert any(line.startswith(name + " ") for line in text.splitlines())
+    ar = text[text.index("AR "):].splitlines()
+    row = next(line for line in ar if line.split()[0] == "298.15")
+    # Cp of a monatomic ideal gas is 5/2 R (R: CODATA via scipy.constants)
+    assert float(row.split()[1]) == pytest.approx(2.5 * C.R, abs=1e-4)
+    assert float(row.split()[2]) == pytest.approx(0.0, abs=1e-4)  # H°298 = ΔfH°298 = 0 for the element
+
+
+def test_git_diff_through_the_textconv_driver(tmp_path):
+    """The README's .gitattributes line and git config make `git diff` show property tables."""
+    import subprocess
+
+    from refdata import ROOT
+
+    if shutil.which("git") is None:
+        pytest.skip("git is not installed")
+    species, out = database(tmp_path)
+    repo = tmp_path
+    shutil.copy2(ROOT / ".gitattributes", repo / ".gitattributes")
+
+    def git(*a):
+        return subprocess.run(["git", *a], cwd=repo, capture_output=True, text=True, check=True).stdout
+
+    git("init", "-q")
+    git("config", "user.email", "t@example.org")
+    git("config", "user.name", "t")
+    git("config", "diff.statherm.textconv", f"{sys.executable} -m pipeline show")
+    git("add", ".gitattributes", "output/thermo.dat")
+    git("commit", "-q", "-m", "db")
+    edit(species / "CH4.yaml", "enthalpy: -74.52", "enthalpy: -74.00")
+    assert run("build", "--species", str(species), "--out", str(out), "--quiet")[0] == 0
+    diff = subprocess.run(["git", "diff", "output/thermo.dat"], cwd=repo, capture_output=True, text=True,
+                          env={**os.environ, "PYTHONPATH": str(ROOT)}).stdout
+    plus = [line[1:] for line in diff.splitlines() if line.startswith("+") and not line.startswith("+++")]
+    assert plus, diff
+    assert not any("E+0" in line or "E-0" in line for line in plus)  # property rows, not coefficient columns
+
+    def numeric(line):
+        try:
+            return len([float(x) for x in line.split()[:5]]) == 5
+        except ValueError:
+            return False
+
+    assert any(numeric(line) for line in plus)
