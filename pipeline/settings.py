@@ -15,6 +15,7 @@ below.
     cp_warning: 0.005      # relative max Cp error above which a fit is flagged
     g_uncertainty_warning: 4.184  # kJ/mol; REPORT.md lists species whose u(G°, 1000 K) exceeds it
     plots: false           # write output/plots/ (needs the 'plot' extra)
+    report_changes: false  # REPORT.md opens with what changed since the last build (from the cache)
     jobs: 1                # worker processes for builds
 """
 
@@ -41,6 +42,7 @@ class Settings:
     cp_warning: float = 0.005
     g_uncertainty_warning: float = 4.184  # [kJ/mol] 1 kcal/mol, "chemical accuracy" (common practice)
     plots: bool = False
+    report_changes: bool = False
     jobs: int = 1
 
     @property
@@ -63,6 +65,7 @@ class Settings:
         d.pop("jobs")
         d.pop("plots")
         d.pop("g_uncertainty_warning")  # only selects what REPORT.md lists
+        d.pop("report_changes")
         return d
 
 
@@ -101,11 +104,12 @@ def load_settings(database: str | Path, base: Settings | None = None) -> Setting
             values[key] = ck.number(m[key], key, positive=True)
     if "tmid" in m:
         values["tmid"] = "auto" if m["tmid"] == "auto" else ck.number(m["tmid"], "tmid", positive=True)
-    if "plots" in m:
-        if not isinstance(m["plots"], bool):
-            ck.error("plots", f"{m['plots']!r} is not true or false")
-        else:
-            values["plots"] = m["plots"]
+    for key in ("plots", "report_changes"):
+        if key in m:
+            if not isinstance(m[key], bool):
+                ck.error(key, f"{m[key]!r} is not true or false")
+            else:
+                values[key] = m[key]
     if "jobs" in m:
         values["jobs"] = ck.integer(m["jobs"], "jobs", minimum=1)
     if not ck.failed:

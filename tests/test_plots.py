@@ -232,3 +232,39 @@ def test_bundled_database_switches_plots_on():
     from pipeline.settings import load_settings
 
     assert load_settings(SPECIES_DIR).plots is True
+
+
+# --------------------------------------------------------------------------
+# REPORT.md: "what changed since the last build"
+# --------------------------------------------------------------------------
+
+
+def test_report_says_what_changed_since_the_last_build(tmp_path):
+    import shutil
+
+    from buildkit import edit, run
+
+    from pipeline.diff import SINCE_BEGIN, strip_since_last_build
+
+    species = _db(tmp_path, "report_changes: true\n")
+    out = tmp_path / "out"
+    assert _build(species, out)[0] == 0
+    assert SINCE_BEGIN not in (out / "REPORT.md").read_text()  # no previous build yet
+    edit(species / "CO2.yaml", "frequencies: [1333.0,", "frequencies: [1340.0,")
+    rc, _, err = _build(species, out)
+    assert rc == 0, err
+    report = (out / "REPORT.md").read_text()
+    section = report[report.index(SINCE_BEGIN):]
+    section = section[:section.index("<!-- statherm: end")]
+    assert "| CO2 | changed |" in section
+    assert "AR" not in section and "HO2" not in section
+    # a no-op rebuild leaves it; check accepts it with and without the cache
+    assert _build(species, out)[0] == 0
+    assert (out / "REPORT.md").read_text() == report
+    assert run("check", "--species", str(species), "--out", str(out))[0] == 0
+    shutil.rmtree(out / ".statherm-cache")
+    rc, _, err = run("check", "--species", str(species), "--out", str(out))
+    assert rc == 0, err
+    # a clean build writes the same report without the section
+    assert _build(species, tmp_path / "clean")[0] == 0
+    assert (tmp_path / "clean" / "REPORT.md").read_text() == strip_since_last_build(report)
