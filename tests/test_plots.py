@@ -268,3 +268,49 @@ def test_report_says_what_changed_since_the_last_build(tmp_path):
     # a clean build writes the same report without the section
     assert _build(species, tmp_path / "clean")[0] == 0
     assert (tmp_path / "clean" / "REPORT.md").read_text() == strip_since_last_build(report)
+
+
+# --------------------------------------------------------------------------
+# statherm diff --plots, statherm plot --reference
+# --------------------------------------------------------------------------
+
+
+def test_diff_plots_one_page_per_changed_species(tmp_path):
+    from buildkit import edit, run
+
+    species = _db(tmp_path)
+    assert _build(species, tmp_path / "old")[0] == 0
+    edit(species / "CO2.yaml", "frequencies: [1333.0,", "frequencies: [1340.0,")
+    assert _build(species, tmp_path / "new")[0] == 0
+    pages = tmp_path / "review"
+    rc, out, err = run("diff", str(tmp_path / "old"), str(tmp_path / "new"), "--plots", str(pages))
+    assert rc == 0, err
+    assert sorted(p.name for p in pages.iterdir()) == ["CO2.png"]
+    assert f"]({(pages / 'CO2.png').as_posix()})" in out
+    first = (pages / "CO2.png").read_bytes()
+    assert run("diff", str(tmp_path / "old"), str(tmp_path / "new"), "--plots", str(pages))[0] == 0
+    assert (pages / "CO2.png").read_bytes() == first
+    # identical databases: no pages, empty report
+    rc, out, _ = run("diff", str(tmp_path / "old"), str(tmp_path / "old"), "--plots", str(tmp_path / "none"))
+    assert (rc, out) == (0, "") and not (tmp_path / "none").exists()
+
+
+def test_plot_reference_from_a_fixed_column_file(tmp_path):
+    from buildkit import run
+
+    species = _db(tmp_path)
+    assert _build(species, tmp_path / "out")[0] == 0
+    ref = tmp_path / "out" / "thermo.dat"  # stands in for a published file of the same layout
+    with_ref, plain = tmp_path / "a.png", tmp_path / "b.png"
+    assert run("plot", "HO2", "--species", str(species), "--reference", str(ref), "-o", str(with_ref))[0] == 0
+    assert run("plot", "HO2", "--species", str(species), "-o", str(plain))[0] == 0
+    assert _pixels(plain.read_bytes(), RED_RGB, 0.05) == 0
+    assert _pixels(with_ref.read_bytes(), RED_RGB, 0.05) > 50  # mostly under the table line: same data
+    lines = ref.read_text().splitlines(keepends=True)
+    at = next(i for i, line in enumerate(lines) if line.startswith("HO2 "))
+    other = tmp_path / "other.dat"
+    other.write_text("".join(lines[:at] + lines[at + 4:]))
+    rc, _, err = run("plot", "HO2", "--species", str(species), "--reference", str(other))
+    assert rc == 1 and "has no record named 'HO2'" in err, err
+    rc, _, err = run("plot", "HO2", "--species", str(species), "--reference", str(SPECIES_DIR / "HO2.yaml"))
+    assert rc == 1 and "HO2.yaml" in err and "Traceback" not in err
