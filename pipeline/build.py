@@ -48,7 +48,7 @@ from pathlib import Path
 from pipeline import __version__
 from pipeline.cache import (
     CACHE_DIR, FORMAT, Cache, Lock, Progress, Unwritable, code_fingerprint, display_path, file_state,
-    sha256_bytes, sha256_json, species_files, used_code_files,
+    sha256_bytes, sha256_json, species_files,
 )
 from pipeline.diagnostics import Diagnostic, InputError
 from pipeline.plots import available as plots_available  # stdlib only: plots appear once matplotlib is installed
@@ -188,12 +188,7 @@ class Inputs:
         sp = d / SETTINGS_FILE
         self.settings_file = display_path(sp)
         self.settings_sha = sha256_bytes(sp.read_bytes()) if sp.is_file() else None
-        self.use_code(None)
-
-    def use_code(self, files: list[str] | None) -> None:
-        """Fingerprint the code: the modules the last build used (``files``), or all of them."""
-        self.code_files = files
-        self.code = code_fingerprint(files)
+        self.code = code_fingerprint()
         self.build_key = sha256_json(
             [FORMAT, __version__, self.code, self.settings_sha, self.flags,
              [(name, sha) for name, _, _, sha in self.files], plots_available()]
@@ -241,11 +236,11 @@ def _apply_flags(species, flags: dict):
     return dataclasses.replace(species, fit=dataclasses.replace(species.fit, **over))
 
 
-def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list[dict], list[dict], list[str]]:
+def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list[dict], list[dict]]:
     """Compute the cache entries of ``items`` = [(key, display path, bytes)].
 
-    Returns (entries, error diagnostics as dicts, code files used).  Entries
-    are stored in the cache (when ``cache_root`` is given) as they are made.
+    Returns (entries, error diagnostics as dicts).  Entries are stored in the
+    cache (when ``cache_root`` is given) as they are made.
     """
     from pipeline.fit import fit_options, fit_tables
     from pipeline.species import _Checker, check_ranges, parse_species
@@ -320,16 +315,15 @@ def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list
         entry["files"] = {rel: sha256_bytes(b) for rel, b in extra.items()}
         entry["_extra"] = extra
         entries.append(entry)
-    return entries, [d.as_dict() for d in errors], used_code_files()
+    return entries, [d.as_dict() for d in errors]
 
 
 def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progress):
     """Run :func:`_compute` over ``todo`` in ``jobs`` processes, in chunks (for the progress bar)."""
     entries: list[dict] = []
     errors: list[dict] = []
-    used: set[str] = set()
     if not todo:
-        return entries, errors, used
+        return entries, errors
     n = len(todo)
     jobs = max(1, min(jobs, n // 8 or 1))
     size = max(25, -(-n // (jobs * 4)) if jobs > 1 else -(-n // 10))
@@ -337,13 +331,12 @@ def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progres
     done = 0
     if jobs == 1:
         for chunk in chunks:
-            e, err, u = _compute(chunk, settings, flags, cache_root)
+            e, err = _compute(chunk, settings, flags, cache_root)
             entries += e
             errors += err
-            used.update(u)
             done += len(chunk)
             progress.update(done)
-        return entries, errors, used
+        return entries, errors
     import multiprocessing
 
     import pipeline.fit, pipeline.species, pipeline.thermo, pipeline.writers  # noqa: F401,E401 (before fork)
@@ -352,13 +345,12 @@ def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progres
     with ctx.Pool(jobs) as pool:
         results = [pool.apply_async(_compute, (chunk, settings, flags, cache_root)) for chunk in chunks]
         for chunk, r in zip(chunks, results):
-            e, err, u = r.get()
+            e, err = r.get()
             entries += e
             errors += err
-            used.update(u)
             done += len(chunk)
             progress.update(done)
-    return entries, errors, used
+    return entries, errors
 
 
 # --------------------------------------------------------------------------
@@ -418,7 +410,7 @@ def _plan(inputs: Inputs, out: Path, cache: Cache | None, *, jobs: int | None, s
     plan.computed = len(todo)
     bar = Progress(len(todo), "statherm build", enabled=verbosity > 0, force=progress)
     try:
-        entries, errors, used = _compute_all(todo, settings, inputs.flags,
+        entries, errors = _compute_all(todo, settings, inputs.flags,
                                        cache.root.as_posix() if cache else None,
                                        jobs or settings.jobs, bar)
     finally:
@@ -448,19 +440,6 @@ def _plan(inputs: Inputs, out: Path, cache: Cache | None, *, jobs: int | None, s
         plan.manifest = {}
         return plan
 
-    code_files = sorted(used | set(used_code_files()) | set(inputs.code_files or ()))
-    if code_fingerprint(code_files) != inputs.code:
-        # key the entries by the modules they were made with, as the next build will look them up
-        inputs.use_code(code_files)
-        names = {disp: name for name, disp, _, _ in inputs.files}
-        for e in good:
-            e["key"] = keys[e["file"]] = inputs.entry_key(names[e["file"]], e["sha256"], skey)
-            if cache is not None:
-                try:
-                    cache.store_entry(e, e.get("_extra"))
-                except OSError:
-                    pass
-
     from pipeline.writers import assemble
 
     files = dict(assemble([e["fragments"] for e in good], glob))
@@ -477,8 +456,6 @@ def _plan(inputs: Inputs, out: Path, cache: Cache | None, *, jobs: int | None, s
         "build_key": inputs.build_key,
         "complete": not plan.errors,
         "code": inputs.code,
-        # modules the entries depend on: those used now, and (for entries from the cache) before
-        "code_files": code_files,
         "settings_file": inputs.settings_sha,
         "settings": skey,
         "flags": inputs.flags,
@@ -615,7 +592,6 @@ def build(species_dir="species", out_dir="output", *, flags: dict | None = None,
     inputs = Inputs(species_dir, flags or {})
     out = _prepare(out_dir)
     cache = Cache(out)
-    _use_manifest_code(inputs, cache)
     if shard is not None:
         plan = _plan(inputs, out, cache, jobs=jobs, shard=shard, verbosity=verbosity, progress=progress)
         _emit(plan.errors + plan.warnings, verbosity, as_json)
@@ -631,17 +607,10 @@ def build(species_dir="species", out_dir="output", *, flags: dict | None = None,
         raise InputError([Diagnostic(out.as_posix(), "", f"cannot write ({exc.strerror}: {exc.filename})")]) from None
 
 
-def _use_manifest_code(inputs: Inputs, cache: Cache | None) -> dict | None:
-    manifest = cache.load_manifest() if cache else None
-    if manifest and isinstance(manifest.get("code_files"), list):
-        inputs.use_code(manifest["code_files"])
-    return manifest
-
-
 def _build_locked(inputs, out, cache, t0, *, jobs, keep_going, verbosity, as_json, progress) -> int:
     if cache.recover() and verbosity > 0:
         print(f"statherm: completed an interrupted build of {out.as_posix()}", file=sys.stderr)
-    manifest = _use_manifest_code(inputs, cache)
+    manifest = cache.load_manifest()
     if (manifest and manifest.get("build_key") == inputs.build_key and manifest.get("complete")
             and _outputs_unchanged(out, manifest)):
         if manifest.pop("touched", False):
@@ -701,7 +670,7 @@ def check(species_dir="species", out_dir="output", *, flags: dict | None = None,
 
 
 def _check(inputs: Inputs, out: Path, cache: Cache | None, verbosity: int, as_json: bool) -> int:
-    manifest = _use_manifest_code(inputs, cache)
+    manifest = cache.load_manifest() if cache else None
     if (manifest and manifest.get("build_key") == inputs.build_key and manifest.get("complete")
             and _outputs_unchanged(out, manifest)):
         if manifest.pop("touched", False):

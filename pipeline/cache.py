@@ -71,53 +71,25 @@ def display_path(p: Path) -> str:
         return p.as_posix()
 
 
-_DATA_SUFFIXES = (".j2", ".jinja", ".json", ".txt", ".md", ".yaml", ".tmpl", ".csv")
+#: package modules that never take part in a build (command-line front ends of other jobs):
+#: editing them keeps the cache valid
+NOT_BUILD_CODE = frozenset({"bench.py", "diff.py"})
 
 
-def _package_root() -> Path:
-    return Path(__file__).resolve().parent
+def code_fingerprint() -> str:
+    """sha256 over the pipeline package: every module (but :data:`NOT_BUILD_CODE`), template and schema.
 
-
-def code_fingerprint(files: list[str] | None = None) -> str:
-    """sha256 over pipeline code: ``files`` (package-relative paths) or every module, plus all data files.
-
-    Templates, schemas and other data files of the package are always
-    included.  A build passes the modules its last full run actually used
-    (:func:`used_code_files`), so editing a module the build never imports
-    (say the benchmark) does not invalidate the cache, while any edit to code
-    that turns inputs into output does.
+    Any edit to code that could turn inputs into different output changes it,
+    so cached results of older code are never reused.
     """
-    root = _package_root()
-    names = set(files) if files is not None else set()
-    for path in root.rglob("*"):
-        if "__pycache__" in path.parts or not path.is_file():
-            continue
-        if path.suffix in _DATA_SUFFIXES or (files is None and path.suffix == ".py"):
-            names.add(path.relative_to(root).as_posix())
+    root = Path(__file__).resolve().parent
     h = hashlib.sha256()
-    for rel in sorted(names):
-        try:
-            data = (root / rel).read_bytes()
-        except OSError:
-            data = b"\0missing"
-        h.update(rel.encode() + b"\0" + hashlib.sha256(data).digest())
-    return h.hexdigest()
-
-
-def used_code_files() -> list[str]:
-    """Package-relative paths of the pipeline modules this process has imported."""
-    root = _package_root()
-    out = set()
-    for name, mod in list(sys.modules.items()):
-        if name != "pipeline" and not name.startswith("pipeline."):
+    for path in sorted(root.rglob("*")):
+        rel = path.relative_to(root).as_posix()
+        if "__pycache__" in path.parts or rel in NOT_BUILD_CODE or not path.is_file() or path.suffix in (".pyc", ".tmp"):
             continue
-        f = getattr(mod, "__file__", None)
-        if f:
-            try:
-                out.add(Path(f).resolve().relative_to(root).as_posix())
-            except ValueError:
-                pass
-    return sorted(out)
+        h.update(rel.encode() + b"\0" + hashlib.sha256(path.read_bytes()).digest())
+    return h.hexdigest()
 
 
 class Unwritable(Exception):
