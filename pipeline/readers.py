@@ -9,7 +9,9 @@ same layout (McBride, Gordon & Reno, NASA TM-4513, 1993; see docs/format.md):
 * comment lines starting with ``!`` and trailing ``! …`` comments; blank lines
   between records;
 * per record four lines; line numbers 1–4 in column 80 are checked when
-  present and not required;
+  present and not required (without them, a record starts at each line with
+  Tlow and Thigh in columns 46–65); text outside a ``THERMO`` section that is
+  not a record is skipped, so a file in another layout yields no records;
 * element fields in columns 25–44 (four of A2,I3) and a fifth in 74–78;
   symbols in any case (``CL``, ``cl`` → ``Cl``); counts written as integers
   or as Fortran reals (``2.``, ``2.00``); blank or zero counts skipped;
@@ -95,15 +97,18 @@ def _parse(text: str, file: str) -> list[Nasa7Fit]:
         raise InputError([Diagnostic(file, f"line {number}", message)])
 
     lines = list(_content(text))
+    # a record starts at a line with 1 in column 80, or (files that do not number their
+    # lines) at an unnumbered line that looks like a first line; it is read as four lines
+    marked = any(_marker(line) == "1" for _, line in lines)
     default_tmid = None
     out: list[Nasa7Fit] = []
     i = 0
-    expect_ranges = False
+    expect_ranges = in_section = False
     while i < len(lines):
         number, line = lines[i]
         word = line.split()[0].upper()
         if word in ("THERMO", "THERM") and not _marker(line):
-            expect_ranges = True
+            expect_ranges = in_section = True
             i += 1
             continue
         if word == "END" and not _marker(line):
@@ -111,13 +116,20 @@ def _parse(text: str, file: str) -> list[Nasa7Fit]:
         if expect_ranges:
             expect_ranges = False
             fields = line.split()
-            if not _marker(line) and len(fields) >= 3:
+            if not _marker(line) and not _looks_like_first(line) and len(fields) >= 3:
                 try:
                     default_tmid = fortran_float(fields[1])
-                    i += 1
-                    continue
                 except ValueError:
                     fail(number, f"the ranges line after THERMO should hold Tlow, Tmid, Thigh; found {line.strip()!r}")
+                i += 1
+                continue
+        starts = _marker(line) == "1" or (not _marker(line) and _looks_like_first(line))
+        if not starts:
+            if marked and in_section:
+                found = f"{_marker(line)!r} in column 80" if _marker(line) else f"{line.strip()[:40]!r}"
+                fail(number, f"expected the first line of a record (1 in column 80), found {found}")
+            i += 1  # text outside a THERMO section (a header, or not this layout at all)
+            continue
         if i + 3 >= len(lines):
             fail(number, f"a record needs 4 lines; the file ends after {len(lines) - i}")
         group = lines[i : i + 4]
@@ -128,6 +140,17 @@ def _parse(text: str, file: str) -> list[Nasa7Fit]:
         out.append(_record(group, default_tmid, fail))
         i += 4
     return out
+
+
+def _looks_like_first(line: str) -> bool:
+    """A line with numbers in columns 46–55 and 56–65 (Tlow, Thigh) and a name."""
+    if len(line) < 65 or not line[:18].strip():
+        return False
+    try:
+        return bool(line[45:55].strip() and line[55:65].strip()) and fortran_float(line[45:55]) >= 0 \
+            and fortran_float(line[55:65]) >= 0
+    except ValueError:
+        return False
 
 
 def _marker(line: str) -> str:

@@ -128,3 +128,13 @@ def test_fortran_reals():
     assert fortran_float("1.0D+01") == 10.0 and fortran_float("-2.5-3") == -2.5e-3 and fortran_float("") == 0.0
     with pytest.raises(ValueError):
         fortran_float("1.2.3")
+
+
+def test_a_file_in_another_layout_holds_no_records_and_stray_text_in_a_section_is_an_error():
+    from refdata import SPECIES_DIR
+
+    assert read_records(SPECIES_DIR / "OH.yaml") == []
+    gri = {f.name: f for f in cantera_fits("gri30.yaml")}
+    text = "THERMO\n   300.000  1000.000  5000.000\n" + foreign_record(gri["H2O"]) + "H2O2 (see below)\nEND\n"
+    with pytest.raises(InputError, match="line 7: expected the first line of a record"):
+        read_records(text, name="stray.dat")
