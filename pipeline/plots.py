@@ -149,6 +149,8 @@ def render_plot(table, fit, uncertainty=None, reference=None, title: str | None 
 
     Residuals: (fit − table)/table for Cp° and S°; for H° the residual
     divided by RT, i.e. the error of H/RT that the polynomial represents.
+    The ± u band is drawn on the residual's scale too, so the page shows
+    whether the fit error is below the uncertainty of the data.
 
     Raises :class:`PlotsUnavailable` without matplotlib.
     """
@@ -167,11 +169,12 @@ def render_plot(table, fit, uncertainty=None, reference=None, title: str | None 
             ax = fig.add_subplot(grid[0, col])
             res = fig.add_subplot(grid[1, col], sharex=ax)
             y = getattr(table, prop)
-            if uncertainty is not None:
-                u = getattr(uncertainty, prop)
-                if np.any(u > 0):
-                    ax.fill_between(T, (y - u) * factor, (y + u) * factor, color="tab:orange",
-                                    alpha=0.35, linewidth=0, label="± u (k = 1)")
+            u = getattr(uncertainty, prop) if uncertainty is not None else None
+            if u is not None and np.any(u > 0):
+                ax.fill_between(T, (y - u) * factor, (y + u) * factor, color="tab:orange",
+                                alpha=0.35, linewidth=0, label="± u (k = 1)")
+            else:
+                u = None
             ax.plot(T, y * factor, color="black", linewidth=1.2, label="partition function")
             ax.plot(T, fitted[prop] * factor, color="tab:blue", linewidth=1.0, linestyle="--",
                     label="polynomials (as written)")
@@ -182,12 +185,12 @@ def render_plot(table, fit, uncertainty=None, reference=None, title: str | None 
                             markerfacecolor="none", color="tab:red", label=ref[0])
                 else:
                     ax.plot(tr, vr * factor, color="tab:red", linewidth=1.0, linestyle=":", label=ref[0])
-            if prop == "h_minus_h298":
-                r = (fitted[prop] - y) / (C.R * T)
-                res.set_ylabel("Δ(H/RT)")
-            else:
-                r = (fitted[prop] - y) / y
-                res.set_ylabel("relative residual")
+            # residual, and the ± u band on the same scale: is the fit error below the data's?
+            scale = C.R * T if prop == "h_minus_h298" else y
+            r = (fitted[prop] - y) / scale
+            res.set_ylabel("Δ(H/RT)" if prop == "h_minus_h298" else "relative residual")
+            if u is not None:
+                res.fill_between(T, -u / scale, u / scale, color="tab:orange", alpha=0.35, linewidth=0)
             res.plot(T, r, color="tab:blue", linewidth=1.0)
             res.axhline(0.0, color="black", linewidth=0.6)
             res.ticklabel_format(axis="y", style="sci", scilimits=(-2, 2))
