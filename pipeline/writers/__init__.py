@@ -35,6 +35,8 @@ from __future__ import annotations
 
 from pathlib import PurePath
 
+import numpy as np
+
 from pipeline.writers.rounding import printed_fit
 
 __all__ = ["species_fragments", "assemble", "printed_fit", "record_text", "record_elements", "FORMAT_VERSION", "table_path"]
@@ -107,8 +109,6 @@ def species_fragments(species, table, fit, settings) -> dict[str, str]:
     settings : Settings
         The build settings (the species file's ``fit:`` overrides are applied here).
     """
-    import numpy as np
-
     from pipeline import __version__
     from pipeline.thermo import T_REF, temperature_grid, thermo_table
     from pipeline.writers.formats import render
@@ -120,7 +120,7 @@ def species_fragments(species, table, fit, settings) -> dict[str, str]:
     printed = printed_fit(fit)
     quality = fit.quality.as_dict() if hasattr(fit.quality, "as_dict") else {}
     elements = record_elements(species.formula, species.charge)
-    record = record_text(printed, identifier(species.sha256) if species.sha256 else "")
+    record = _record(printed, identifier(species.sha256) if species.sha256 else "")
 
     # property table at the table step, with the printed polynomials beside it
     grid = temperature_grid(s.tmin, s.tmax, s.table_step)
@@ -210,9 +210,13 @@ def record_text(fit, identifier: str = "") -> str:
     Elements are the fit's formula and, for an ion, ``E`` with count −charge;
     a fifth element goes to columns 74–78; more do not fit and raise ValueError.
     """
+    return _record(printed_fit(fit), identifier)
+
+
+def _record(p, identifier: str) -> str:
+    """:func:`record_text` of a fit already printed."""
     from pipeline.writers.formats import render
 
-    p = printed_fit(fit)
     elements = record_elements(p.formula, p.charge)
     if len(elements) > 5:
         raise ValueError(f"{p.name}: {len(elements)} elements (electron included) do not fit a record (at most 5)")
@@ -236,19 +240,19 @@ def _uncertainty(species, T, pressure):
     return propagate(species, T, pressure)
 
 
-def _cells(columns) -> list[list[str]]:
-    """Rows of formatted CSV cells from (header, values, format) columns."""
+def _cells(columns) -> list[str]:
+    """CSV rows (joined cells) from (header, values, format) columns."""
     from pipeline.writers.formats import csv_number
 
-    line = ",".join("{:" + fmt + "}" for _, _, fmt in columns)
+    line = ",".join("%" + fmt for _, _, fmt in columns)
+    data = [(np.asarray(c[1], dtype=float) + 0.0).tolist() for c in columns]  # + 0.0: no negative zero
     rows = []
-    for values in zip(*(c[1].tolist() for c in columns)):
-        text = line.format(*(v + 0.0 for v in values))
+    for values in zip(*data):
+        text = line % values
         padded = f",{text},"
         if ",-0.000000," in padded or ",-0.00," in padded:  # a tiny negative printed as −0
-            rows.append([csv_number(v, c[2]) for v, c in zip(values, columns)])
-        else:
-            rows.append([text])
+            text = ",".join(csv_number(v, c[2]) for v, c in zip(values, columns))
+        rows.append(text)
     return rows
 
 

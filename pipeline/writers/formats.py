@@ -84,6 +84,8 @@ def yaml_value(value) -> str:
     >>> yaml_value(1e-05), yaml_value(-3e+20), yaml_value(float("inf"))
     ('1.0e-05', '-3.0e+20', '.inf')
     """
+    if type(value) is list and all(type(v) is float for v in value):  # the common case, fast
+        return "[" + ", ".join(_yaml_float(v) for v in value) + "]"
     if value is None:
         return "null"
     if isinstance(value, bool):
@@ -91,17 +93,7 @@ def yaml_value(value) -> str:
     if isinstance(value, int):
         return str(value)
     if isinstance(value, float):
-        if math.isnan(value):
-            return ".nan"
-        if math.isinf(value):
-            return ".inf" if value > 0 else "-.inf"
-        text = repr(value + 0.0)
-        if "e" in text:
-            mantissa, exponent = text.split("e")
-            if "." not in mantissa:
-                mantissa += ".0"
-            return f"{mantissa}e{exponent}"
-        return text
+        return _yaml_float(value)
     if isinstance(value, str):
         text = json.dumps(value, ensure_ascii=False)
         for ch in "\u0085\u2028\u2029\ufeff":  # line breaks and BOM to YAML, not to JSON
@@ -116,6 +108,32 @@ def yaml_value(value) -> str:
     raise TypeError(f"cannot write {type(value).__name__} to YAML")
 
 
+def _yaml_float(value: float) -> str:
+    if math.isnan(value):
+        return ".nan"
+    if math.isinf(value):
+        return ".inf" if value > 0 else "-.inf"
+    text = repr(value + 0.0)
+    if "e" in text:
+        mantissa, exponent = text.split("e")
+        if "." not in mantissa:
+            mantissa += ".0"
+        return f"{mantissa}e{exponent}"
+    return text
+
+
+def yaml_block(mapping: dict, indent: int = 0) -> str:
+    """A mapping as YAML block lines ``key: flow value`` at ``indent`` spaces (no final newline).
+
+    >>> print(yaml_block({"tmid": 1000.0, "cp_r": {"max_rel": 0.001}}, 4))
+        tmid: 1000.0
+        cp_r: {max_rel: 0.001}
+    """
+    pad = " " * indent
+    return "\n".join(f"{pad}{yaml_key(k)}: {yaml_value(v)}" for k, v in mapping.items())
+
+
+@functools.lru_cache(maxsize=4096)
 def yaml_key(key) -> str:
     """A mapping key: identifier-like keys plain, anything else quoted.
 
@@ -152,7 +170,7 @@ def md_number(x: float, fmt: str = ".3f") -> str:
 
 FILTERS = {
     "e15": e15, "f10": f10, "f8": f8, "element": element_field, "yaml": yaml_value,
-    "yaml_key": yaml_key, "csv": csv_number, "md": md_number,
+    "yaml_key": yaml_key, "yaml_block": yaml_block, "csv": csv_number, "md": md_number,
 }
 
 

@@ -42,7 +42,7 @@ import math
 
 import numpy as np
 
-from pipeline.nasa7 import Nasa7Fit, cp_r, h_rt, s_r
+from pipeline.nasa7 import Nasa7Fit
 from pipeline.thermo import T_REF
 
 #: relative bars as printed (normalised by max(|value|, 1))
@@ -99,7 +99,6 @@ def last_digit(x: float) -> float:
     return 10.0 ** (exponent - (SIGNIFICANT - 1))
 
 
-_EVAL = {"cp": cp_r, "h": h_rt, "s": s_r}
 _BAR = {"cp": CP_BAR, "h": H_S_BAR, "s": H_S_BAR}
 
 
@@ -133,10 +132,15 @@ def _close(a5, T: float, targets: dict) -> tuple:
     return tuple(a5) + (a6, a7)
 
 
+def _value(q: str, a, T: float) -> float:
+    """Cp/R, H/RT or S/R of the seven coefficients ``a`` at T, in double precision
+    (the same numbers as :mod:`pipeline.nasa7` up to summation order, ~1e-16)."""
+    v = _dot(_poly_list(T)[q], a[:5])
+    return v + a[5] / T if q == "h" else v + a[6] if q == "s" else v
+
+
 def _meets(a: tuple, T: float, targets: dict) -> bool:
-    return all(
-        abs(float(_EVAL[q](a, T)) - t) <= MARGIN * _BAR[q] * max(abs(t), 1.0) for q, t in targets.items()
-    )
+    return all(abs(_value(q, a, T) - t) <= MARGIN * _BAR[q] * max(abs(t), 1.0) for q, t in targets.items())
 
 
 def _round_sig_array(x: np.ndarray) -> np.ndarray:
@@ -353,11 +357,11 @@ def printed_fit(fit: Nasa7Fit) -> Nasa7Fit:
     two_ranges = tlow < tmid < thigh
     ref_is_low = (not two_ranges) or T_REF <= tmid
     ref_src, other_src = (fit.low, fit.high) if ref_is_low else (fit.high, fit.low)
-    targets = {"h": float(h_rt(ref_src, T_REF)), "s": float(s_r(ref_src, T_REF))}
+    targets = {"h": _value("h", ref_src, T_REF), "s": _value("s", ref_src, T_REF)}
     span = (tlow, tmid) if ref_is_low else (tmid, thigh)
     ref = _balanced(ref_src, T_REF, targets, span, "H and S at 298.15 K", fit.name)
     if two_ranges:
-        targets = {q: float(_EVAL[q](ref, tmid)) for q in ("cp", "h", "s")}
+        targets = {q: _value(q, ref, tmid) for q in ("cp", "h", "s")}
         span = (tmid, thigh) if ref_is_low else (tlow, tmid)
         other = _balanced(other_src, tmid, targets, span, f"continuity at Tmid = {tmid} K", fit.name)
     else:
