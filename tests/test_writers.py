@@ -277,3 +277,29 @@ def test_report_has_one_row_per_species_in_name_order():
     assert "## Caution" in report and "## How the tables were made" in report
     width = next(l for l in report.splitlines() if l.startswith("|---")).count("|")
     assert all(r.count("|") == width for r in rows)
+
+
+_DIGESTS = r"""
+import hashlib, json, sys
+sys.path.insert(0, sys.argv[1])
+from writerkit import small_build
+from pipeline.writers import assemble
+settings, *_, frags = small_build()
+print(json.dumps({k: hashlib.sha256(v).hexdigest() for k, v in assemble(frags, settings).items()}))
+"""
+
+
+def test_builds_in_separate_processes_are_byte_identical():
+    """Same inputs, same bytes — across interpreter runs with different hash seeds."""
+    import hashlib
+    import os
+    import subprocess
+    import sys
+
+    settings, *_, frags = small_build()
+    here = {k: hashlib.sha256(v).hexdigest() for k, v in assemble(frags, settings).items()}
+    tests = str(Path(__file__).resolve().parent)
+    for seed in ("1", "2"):
+        run = subprocess.run([sys.executable, "-c", _DIGESTS, tests], capture_output=True, text=True, cwd=ROOT,
+                             env={**os.environ, "PYTHONHASHSEED": seed}, check=True)
+        assert json.loads(run.stdout) == here
