@@ -20,10 +20,14 @@ properties *as printed*:
    Tmid, then a6, a7 are re-derived so that H/RT and S/R equal it there;
 5. the rounding of a6, a7 and a1 alone leaves errors above the bars for many
    species (a6 ≈ −1000 prints with a step of 1e-5, i.e. 3e-8 in H/RT at
-   298 K), so the last digits of a1 … a5 are nudged — one, two or three of them
-   by a few units — and steps 3–4 repeated, trying the nudges in order of the
-   Cp/R change they cause over the range; the first that meets every bar as
-   printed is kept.  That change is far below the fit error (≲ 1e-7 in Cp/R).
+   298 K), so the last digits of a1 … a5 are nudged and steps 3–4 repeated:
+   first moves aimed at the printed grid of a6 and a7 (:func:`_aimed`, Cp/R
+   change bounded by :data:`DISTURBANCE`), then, as a last resort, sweeps of
+   one coefficient and small moves of two or three (:func:`_nudged`), each
+   family tried in order of the Cp/R change it causes over the range; the
+   first candidate that meets every bar as printed is kept.  Measured: at
+   most 8.6e-7 relative change of Cp for the bundled species, 7e-6 for the
+   hardest NASA Glenn sets shipped with cantera — far below any fit error.
 
 All conditions are measured the way solvers check them: relative to
 max(|value|, 1) of the dimensionless quantity (Cp/R, H/RT, S/R).  The bars are
