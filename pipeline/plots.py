@@ -308,39 +308,33 @@ def species_files(species, table, fit, settings) -> dict[str, bytes]:
     """The build's per-species plot files: ``{"plots/NAME.png": PNG bytes}``.
 
     ``table`` is the species' table on the fit grid and ``fit`` the fitted
-    polynomials (drawn as the fixed-column record prints them).  Raises
-    :class:`PlotsUnavailable` (an ImportError) without matplotlib.
+    polynomials.  Raises :class:`PlotsUnavailable` (an ImportError) without
+    matplotlib.
     """
-    from pipeline.uncertainty import propagate
-
     _mpl()
-    u = propagate(species, table.T, table.pressure)
-    page = render_plot(table, written_fit(fit), u, getattr(species, "reference", None))
-    return {f"{PLOTS_DIR}/{plot_file_name(species.name)}": page}
+    return {f"{PLOTS_DIR}/{plot_file_name(species.name)}": _page(species, table, fit)}
 
 
 def species_page(species, settings, reference=None) -> bytes:
-    """Compute, fit, round as written and draw one species (the on-demand path)."""
+    """Compute, fit and draw one species (the on-demand path of ``statherm plot``)."""
     from pipeline.fit import fit_options, fit_table
     from pipeline.thermo import temperature_grid, thermo_table
-    from pipeline.uncertainty import propagate
 
     s = settings.for_species(species)
-    T = temperature_grid(s.tmin, s.tmax, s.grid_step)
-    table = thermo_table(species, T, s.pressure_pa)
-    fit = written_fit(fit_table(table, **fit_options(species, settings)))
+    table = thermo_table(species, temperature_grid(s.tmin, s.tmax, s.grid_step), s.pressure_pa)
+    return _page(species, table, fit_table(table, **fit_options(species, settings)), reference)
+
+
+def _page(species, table, fit, reference=None) -> bytes:
+    """One species page: the polynomials as the fixed-column record prints them, the ± u band
+    on the table's grid, the given reference or else the species file's ``reference:``."""
+    from pipeline.uncertainty import propagate
+    from pipeline.writers.rounding import printed_fit
+
+    u = propagate(species, table.T, table.pressure)
     if reference is None:
         reference = getattr(species, "reference", None)
-    return render_plot(table, fit, propagate(species, T, s.pressure_pa), reference)
-
-
-def written_fit(fit):
-    """The fit as the fixed-column record prints it (rounding-aware), if the writer is present."""
-    try:
-        from pipeline.writers.rounding import printed_fit
-    except ModuleNotFoundError:  # pragma: no cover - the writers ship with the package
-        return fit
-    return printed_fit(fit)
+    return render_plot(table, printed_fit(fit), u, reference)
 
 
 def cmd_plot(args) -> int:
