@@ -314,3 +314,15 @@ def test_plot_reference_from_a_fixed_column_file(tmp_path):
     assert rc == 1 and "has no record named 'HO2'" in err, err
     rc, _, err = run("plot", "HO2", "--species", str(species), "--reference", str(SPECIES_DIR / "HO2.yaml"))
     assert rc == 1 and "HO2.yaml" in err and "Traceback" not in err
+
+
+def test_report_lists_species_above_the_g_uncertainty_threshold(tmp_path):
+    # HO2 states u(ΔfH°) = 0.16 kJ/mol, CO2 0.13 kJ/mol, Ar 0 (their species files): with nothing
+    # else stated, u(G°, 1000 K) = u(ΔfH°), so a 0.15 kJ/mol threshold flags HO2 alone
+    species = _db(tmp_path, "g_uncertainty_warning: 0.15\n")
+    assert _build(species, tmp_path / "out")[0] == 0
+    report = (tmp_path / "out" / "REPORT.md").read_text()
+    head = "## Species whose u(G°, 1000 K) exceeds 0.150 kJ/mol"
+    assert head in report
+    listed = report[report.index(head):].split("\n## ")[0]
+    assert "`HO2`: 0.16 kJ/mol" in listed and "CO2" not in listed and "AR" not in listed
