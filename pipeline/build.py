@@ -284,7 +284,6 @@ def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list
                     fits.append(None)
 
     cache = Cache(Path(cache_root).parent) if cache_root else None
-    plots_off_said = False
     entries = []
     for (key, disp, sp, warns, s, table), fit in zip(loaded, fits):
         if fit is None:
@@ -297,9 +296,7 @@ def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list
 
                 extra = plot_files(sp, table, fit, s)
             except ImportError as exc:
-                if not plots_off_said:
-                    warns = list(warns) + [Diagnostic(disp, "plots", f"no plots written: {exc}", "warning")]
-                    plots_off_said = True
+                warns = list(warns) + [Diagnostic(disp, "plots", f"no plots written: {exc}", "warning")]
         quality = getattr(fit, "quality", None)
         fit_warns = [Diagnostic(disp, "fit", w, "warning") for w in getattr(quality, "warnings", ())]
         entry = {
@@ -420,8 +417,15 @@ def _plan(inputs: Inputs, out: Path, cache: Cache | None, *, jobs: int | None, s
         by_file[e["file"]] = e
         if verbosity > 1:
             print(f"computed {e['file']} ({e['name']})", file=sys.stderr)
+    no_plots = None
     for e in by_file.values():
-        plan.warnings.extend(Diagnostic(**d) for d in e["warnings"])
+        for d in e["warnings"]:
+            if d["key"] == "plots":  # said once for the database, not for every species
+                no_plots = Diagnostic(inputs.settings_file, "plots", d["message"], "warning")
+            else:
+                plan.warnings.append(Diagnostic(**d))
+    if no_plots:
+        plan.warnings.append(no_plots)
     if shard is not None:
         plan.files, plan.entries, plan.manifest = {}, [], {}
         return plan
@@ -560,6 +564,12 @@ def _leftovers(out: Path, files: dict[str, bytes]) -> set[str]:
     return out_left
 
 
+def _note(as_json: bool, text: str) -> None:
+    """A line for people on stderr (left out when diagnostics go out as one JSON document)."""
+    if not as_json:
+        print(text, file=sys.stderr)
+
+
 def _emit(diags: list[Diagnostic], verbosity: int, as_json: bool) -> None:
     from pipeline.cli import report
 
@@ -597,7 +607,7 @@ def build(species_dir="species", out_dir="output", *, flags: dict | None = None,
         _emit(plan.errors + plan.warnings, verbosity, as_json)
         if verbosity > 0 and not plan.errors:
             i, n = shard
-            print(f"statherm: shard {i}/{n}: {plan.computed} species computed into the cache", file=sys.stderr)
+            _note(as_json, f"statherm: shard {i}/{n}: {plan.computed} species computed into the cache")
         return EXIT_DATA if plan.errors else EXIT_OK
     try:
         with Lock(out, quiet=verbosity == 0):
@@ -609,22 +619,22 @@ def build(species_dir="species", out_dir="output", *, flags: dict | None = None,
 
 def _build_locked(inputs, out, cache, t0, *, jobs, keep_going, verbosity, as_json, progress) -> int:
     if cache.recover() and verbosity > 0:
-        print(f"statherm: completed an interrupted build of {out.as_posix()}", file=sys.stderr)
+        _note(as_json, f"statherm: completed an interrupted build of {out.as_posix()}")
     manifest = cache.load_manifest()
     if (manifest and manifest.get("build_key") == inputs.build_key and manifest.get("complete")
             and _outputs_unchanged(out, manifest)):
         if manifest.pop("touched", False):
             cache.store_manifest(manifest)
         if verbosity > 1:
-            print(f"statherm: {out.as_posix()} is up to date ({len(inputs.files)} species)", file=sys.stderr)
+            _note(as_json, f"statherm: {out.as_posix()} is up to date ({len(inputs.files)} species)")
         return EXIT_OK
     plan = _plan(inputs, out, cache, jobs=jobs, keep_going=keep_going, verbosity=verbosity, progress=progress,
                  since_last=manifest is not None)
     if plan.errors and not keep_going:
         _emit(plan.errors + plan.warnings, verbosity, as_json)
         files = len({d.file for d in plan.errors})
-        print(f"statherm: {files} file(s) with errors; {out.as_posix()} left unchanged "
-              "(--keep-going writes the good species)", file=sys.stderr)
+        _note(as_json, f"statherm: {files} file(s) with errors; {out.as_posix()} left unchanged "
+              "(--keep-going writes the good species)")
         return EXIT_DATA
     writes, deletes = _changes(out, plan.files, manifest)
     cache.commit(writes, deletes, plan.manifest)
@@ -633,9 +643,9 @@ def _build_locked(inputs, out, cache, t0, *, jobs, keep_going, verbosity, as_jso
     _emit(plan.errors + plan.warnings, verbosity, as_json)
     if verbosity > 0 and (writes or deletes or plan.computed or verbosity > 1):
         dt = time.monotonic() - t0
-        print(f"statherm: {len(plan.entries)} species ({plan.computed} computed, {plan.cached} cached) → "
+        _note(as_json, f"statherm: {len(plan.entries)} species ({plan.computed} computed, {plan.cached} cached) → "
               f"{out.as_posix()}: {len(writes)} file(s) written, {len(deletes)} removed, "
-              f"{len(plan.files) - len(writes)} unchanged ({dt:.2f} s)", file=sys.stderr)
+              f"{len(plan.files) - len(writes)} unchanged ({dt:.2f} s)")
     if verbosity > 1:
         for rel in sorted(writes):
             print(f"  wrote {rel}", file=sys.stderr)
@@ -676,13 +686,13 @@ def _check(inputs: Inputs, out: Path, cache: Cache | None, verbosity: int, as_js
         if manifest.pop("touched", False):
             cache.store_manifest(manifest)
         if verbosity > 1:
-            print(f"statherm: {out.as_posix()} is up to date", file=sys.stderr)
+            _note(as_json, f"statherm: {out.as_posix()} is up to date")
         return EXIT_OK
     plan = _plan(inputs, out, cache, jobs=None, verbosity=0)
     if plan.errors:
         _emit(plan.errors, verbosity, as_json)
-        print(f"statherm: {len({d.file for d in plan.errors})} species file(s) with errors: "
-              f"{out.as_posix()} cannot be checked", file=sys.stderr)
+        _note(as_json, f"statherm: {len({d.file for d in plan.errors})} species file(s) with errors: "
+              f"{out.as_posix()} cannot be checked")
         return EXIT_DATA
     writes, deletes = _changes(out, plan.files, manifest)
     _ignore_changes_section(out, plan.files, writes)
@@ -693,13 +703,13 @@ def _check(inputs: Inputs, out: Path, cache: Cache | None, verbosity: int, as_js
                 m["outputs"][rel][:2] = file_state(out / rel)
             cache.store_manifest(m)
         if verbosity > 1:
-            print(f"statherm: {out.as_posix()} is up to date", file=sys.stderr)
+            _note(as_json, f"statherm: {out.as_posix()} is up to date")
         return EXIT_OK
     diags = _stale_reasons(inputs, out, plan, manifest, writes, deletes)
     _emit(diags, 1, as_json)
     if verbosity > 0 and not as_json:
-        print(f"statherm: {out.as_posix()} is stale ({len(writes)} file(s) differ, {len(deletes)} left over): "
-              "run `statherm build` (or `make`)", file=sys.stderr)
+        _note(as_json, f"statherm: {out.as_posix()} is stale ({len(writes)} file(s) differ, {len(deletes)} left over): "
+              "run `statherm build` (or `make`)")
     return EXIT_DATA
 
 
