@@ -20,7 +20,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from refdata import SPECIES_DIR
+from refdata import ROOT, SPECIES_DIR
 from writerkit import cantera_fits
 
 from pipeline.readers import read_records
@@ -57,18 +57,22 @@ def bundled_database() -> tuple[Path, bytes]:
     return folder, text.encode()
 
 
-@functools.lru_cache(maxsize=None)
-def converted():
-    """cantera's conversion of thermo.dat: (converter output, species list), warnings as errors."""
-    folder, _ = bundled_database()
+def convert(thermo_dat: Path, folder: Path):
+    """cantera's conversion of a thermo.dat: (converter output, species list), warnings as errors."""
     out = io.StringIO()
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         with contextlib.redirect_stdout(out):
-            ck2yaml.convert(None, thermo_file=str(folder / "thermo.dat"),
-                            out_name=str(folder / "thermo.yaml"), quiet=True)
-        species = ct.Species.list_from_file(str(folder / "thermo.yaml"))
+            ck2yaml.convert(None, thermo_file=str(thermo_dat), out_name=str(folder / "converted.yaml"), quiet=True)
+        species = ct.Species.list_from_file(str(folder / "converted.yaml"))
     return out.getvalue(), species
+
+
+@functools.lru_cache(maxsize=None)
+def converted():
+    """The bundled database of this test, converted by cantera."""
+    folder, _ = bundled_database()
+    return convert(folder / "thermo.dat", folder)
 
 
 def test_converter_reads_every_record_without_a_message():
@@ -139,3 +143,21 @@ def test_adiabatic_flame_temperature_within_10_K_of_gri_mech(fuel):
     t_gri = flame_temperature([gri[n] for n in names], fuel)
     assert abs(t_ours - t_gri) <= 10.0, (fuel, t_ours, t_gri)
     assert 2000.0 < t_gri < 2500.0  # both flames near 2200–2400 K (from memory), a sanity bound
+
+
+COMMITTED = ROOT / "output" / "thermo.dat"
+
+
+@pytest.mark.skipif(not COMMITTED.is_file(), reason="no committed output/thermo.dat in this checkout")
+def test_committed_database_loads_without_warning_and_gives_the_flame_temperatures(tmp_path):
+    log, species = convert(COMMITTED, tmp_path)
+    assert log == ""
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        ct.Solution(thermo="ideal-gas", species=species)
+    gri = {s.name: s for s in ct.Species.list_from_file("gri30.yaml")}
+    names = [s.name for s in species if s.name in gri]
+    for fuel in ("H2", "CH4"):
+        t_ours = flame_temperature([s for s in species if s.name in names], fuel)
+        t_gri = flame_temperature([gri[n] for n in names], fuel)  # GRI-Mech 3.0 thermo (gri30.yaml)
+        assert abs(t_ours - t_gri) <= 10.0, (fuel, t_ours, t_gri)

@@ -33,6 +33,7 @@ formats are described in ``docs/format.md``.
 
 from __future__ import annotations
 
+import dataclasses
 from pathlib import PurePath
 
 import numpy as np
@@ -112,8 +113,6 @@ def species_fragments(species, table, fit, settings) -> dict[str, str]:
     from pipeline import __version__
     from pipeline.thermo import T_REF, temperature_grid, thermo_table
     from pipeline.writers.formats import render
-
-    import dataclasses
 
     s = settings.for_species(species)
     fit = dataclasses.replace(fit, name=species.name, formula=tuple(species.formula), charge=int(species.charge))
