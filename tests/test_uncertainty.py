@@ -30,6 +30,7 @@ from pipeline.species import parse_species
 from pipeline.thermo import temperature_grid
 from pipeline.uncertainty import monte_carlo, propagate, sensitivities, uncertain_inputs
 from pipeline.units import theta
+from refdata import SPECIES_DIR
 
 GRID = temperature_grid(200.0, 6000.0, 100.0)
 
@@ -178,3 +179,35 @@ def test_bad_uncertainty_is_reported(old, new, key, words):
     d = exc.value.diagnostics[0]
     assert (d.file, d.key) == ("HO2.yaml", key)
     assert words in d.message
+
+
+def test_band_written_into_thermo_yaml_and_tables(tmp_path, database):
+    """The outputs carry the propagated band where uncertainties are stated, and none elsewhere."""
+    import pandas as pd
+
+    from buildkit import run
+    from pipeline.species import load_species, load_yaml
+
+    species = tmp_path / "species"
+    species.mkdir()
+    (species / "HO2.yaml").write_text(_DOC)
+    off = (SPECIES_DIR / "OH.yaml").read_text().replace("uncertainty: 0.03", "")
+    assert "uncertainty" not in off
+    (species / "OH.yaml").write_text(off)
+    rc, _, err = run("build", "--species", str(species), "--out", str(tmp_path / "out"), "--quiet")
+    assert rc == 0, err
+    ho2 = load_species(species / "HO2.yaml")[0]
+    doc = load_yaml((tmp_path / "out" / "thermo.yaml").read_text())
+    entries = {e["name"]: e for e in doc["species"]}
+    assert "uncertainty" not in entries["OH"]
+    band = entries["HO2"]["uncertainty"]
+    expect = propagate(ho2, band["T"])
+    assert band["inputs"] == [i.key for i in expect.inputs]
+    for prop in ("cp", "s", "h_minus_h298", "h", "g"):
+        assert np.allclose(band[prop], getattr(expect, prop), rtol=1e-5, atol=1e-9), prop
+    csv = pd.read_csv(tmp_path / "out" / "tables" / "HO2.csv")
+    T = csv["T [K]"].to_numpy()
+    expect = propagate(ho2, T)
+    assert np.allclose(csv["u(Cp) [J/mol/K]"], expect.cp, atol=1e-6)
+    assert np.allclose(csv["u(G) [kJ/mol]"], expect.g / 1e3, atol=1e-6)
+    assert not [c for c in pd.read_csv(tmp_path / "out" / "tables" / "OH.csv").columns if c.startswith("u(")]
