@@ -259,12 +259,13 @@ def render_comparison(name: str, T, old, new, old_label: str = "old", new_label:
 
 
 def plot_file_name(name: str) -> str:
-    """File name of a species' page under ``plots/``.
+    """File name of a species' page (path separators, which records read from other
+    programs' files may hold, become ``_``).
 
-    >>> plot_file_name("CH3O2")
-    'CH3O2.png'
+    >>> plot_file_name("CH3O2"), plot_file_name("C2H4O/2")
+    ('CH3O2.png', 'C2H4O_2.png')
     """
-    return f"{name}.png"
+    return name.replace("/", "_").replace("\\", "_") + ".png"
 
 
 def write_comparisons(changes, old, new, directory, old_label: str = "old", new_label: str = "new") -> list[str]:
