@@ -111,7 +111,7 @@ def species_fragments(species, table, fit, settings) -> dict[str, str]:
         The build settings (the species file's ``fit:`` overrides are applied here).
     """
     from pipeline import __version__
-    from pipeline.thermo import T_REF, temperature_grid, thermo_table
+    from pipeline.thermo import T_REF, temperature_grid
     from pipeline.writers.formats import render
 
     s = settings.for_species(species)
@@ -122,8 +122,7 @@ def species_fragments(species, table, fit, settings) -> dict[str, str]:
     record = _record(printed, identifier(species.sha256) if species.sha256 else "")
 
     # property table at the table step, with the printed polynomials beside it
-    grid = temperature_grid(s.tmin, s.tmax, s.table_step)
-    tab = thermo_table(species, grid, s.pressure_pa)
+    tab = _at_table_step(species, table, temperature_grid(s.tmin, s.tmax, s.table_step), s.pressure_pa)
     u = _uncertainty(species, tab.T, s.pressure_pa)
     T = tab.T
     h298 = float(printed.h(T_REF))
@@ -228,6 +227,19 @@ def _record(p, identifier: str) -> str:
     )
     _check_record(p.name, text)
     return text
+
+
+def _at_table_step(species, table, grid, pressure):
+    """The species' table on ``grid``: rows of the fit-grid ``table`` when it holds
+    every grid temperature (the usual case: 10 K grid, 100 K table step), else computed."""
+    from pipeline.thermo import thermo_table
+
+    T = np.asarray(table.T, dtype=float)
+    idx = np.searchsorted(T, grid)
+    if table.pressure == pressure and np.all(idx < len(T)) and np.array_equal(T[np.minimum(idx, len(T) - 1)], grid):
+        rows = {f: getattr(table, f)[idx] for f in ("T", "cp", "s", "h_minus_h298", "g_fn", "h")}
+        return dataclasses.replace(table, **rows)
+    return thermo_table(species, grid, pressure)
 
 
 def _uncertainty(species, T, pressure):
