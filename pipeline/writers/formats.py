@@ -84,36 +84,42 @@ def yaml_value(value) -> str:
     >>> yaml_value(1e-05), yaml_value(-3e+20), yaml_value(float("inf"))
     ('1.0e-05', '-3.0e+20', '.inf')
     """
-    if type(value) is list and all(type(v) is float for v in value):  # the common case, fast
-        return "[" + ", ".join(_yaml_float(v) for v in value) + "]"
+    kind = type(value)
+    if kind is float:
+        return _yaml_float(value)
+    if kind is list or kind is tuple:
+        return "[" + ", ".join(_yaml_float(v) if type(v) is float else yaml_value(v) for v in value) + "]"
+    if kind is dict:
+        return "{" + ", ".join(f"{yaml_key(k)}: {yaml_value(v)}" for k, v in value.items()) + "}"
+    if kind is str:
+        return _yaml_string(value)
     if value is None:
         return "null"
-    if isinstance(value, bool):
+    if kind is bool:
         return "true" if value else "false"
-    if isinstance(value, int):
+    if kind is int:
         return str(value)
-    if isinstance(value, float):
-        return _yaml_float(value)
-    if isinstance(value, str):
-        text = json.dumps(value, ensure_ascii=False)
-        for ch in "\u0085\u2028\u2029\ufeff":  # line breaks and BOM to YAML, not to JSON
-            text = text.replace(ch, f"\\u{ord(ch):04x}")
-        return text
-    if isinstance(value, dict):
-        return "{" + ", ".join(f"{yaml_key(k)}: {yaml_value(v)}" for k, v in value.items()) + "}"
-    if isinstance(value, (list, tuple)):
-        return "[" + ", ".join(yaml_value(v) for v in value) + "]"
+    if isinstance(value, (bool, int, float, str, dict, list, tuple)):  # subclasses
+        base = next(t for t in (bool, int, float, str, dict, list) if isinstance(value, t))
+        return yaml_value(base(value))
     if hasattr(value, "item"):  # numpy scalars
         return yaml_value(value.item())
     raise TypeError(f"cannot write {type(value).__name__} to YAML")
 
 
+def _yaml_string(value: str) -> str:
+    if value.isascii() and value.isprintable() and '"' not in value and "\\" not in value:
+        return f'"{value}"'
+    text = json.dumps(value, ensure_ascii=False)
+    for ch in "\u0085\u2028\u2029\ufeff":  # line breaks and BOM to YAML, not to JSON
+        text = text.replace(ch, f"\\u{ord(ch):04x}")
+    return text
+
+
 def _yaml_float(value: float) -> str:
-    if math.isnan(value):
-        return ".nan"
-    if math.isinf(value):
-        return ".inf" if value > 0 else "-.inf"
     text = repr(value + 0.0)
+    if "n" in text:  # inf, nan
+        return ".nan" if math.isnan(value) else ".inf" if value > 0 else "-.inf"
     if "e" in text:
         mantissa, exponent = text.split("e")
         if "." not in mantissa:
