@@ -17,7 +17,6 @@ import tempfile
 import warnings
 from pathlib import Path
 
-import numpy as np
 import pytest
 
 from refdata import ROOT, SPECIES_DIR
