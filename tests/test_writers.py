@@ -80,7 +80,7 @@ def test_published_coefficients_perturbed_meet_the_bars_as_printed(source):
         fit = Nasa7Fit(f.name, f.formula, f.tlow, f.tmid, f.thigh, tuple(low), tuple(high), charge=f.charge)
         back = as_printed(fit)
         assert_bars(fit, back)
-        # the nudges stay far below any fit error: Cp changes by < 1e-5 relative
+        # the nudges stay far below any fit error: Cp changes by < 1e-5 relative (project bar, docs/format.md)
         T = np.linspace(fit.tlow, fit.thigh, 301)
         T = T[np.abs(T - fit.tmid) > 1.0]
         assert np.max(np.abs(back.cp_r(T) / fit.cp_r(T) - 1)) < 1e-5, f.name
