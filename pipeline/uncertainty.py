@@ -21,9 +21,9 @@ output y(T),
 with the sensitivities ∂y/∂x_i computed from the model itself by central
 differences of :func:`pipeline.thermo.thermo_table`, each call vectorised over
 the temperature grid, and the curvature from the model at x_i ± u(x_i).  The
-second term matters only where a slope changes sign (e.g. the Cp° of a
-hindered rotor against its barrier near the temperature of its Cp maximum),
-where the first-order result alone would fall to zero.  Signed sensitivities are combined per input before
+second term matters only where a slope changes sign (e.g. the Cp° of ethane's
+hindered rotor against its barrier, near 320 K), where the first-order result
+alone would fall to zero.  Signed sensitivities are combined per input before
 squaring, so correlated outputs are right: G° = H° − T S° takes
 ∂G/∂x = ∂H/∂x − T ∂S/∂x.  The formation enthalpy enters H° and G° with
 sensitivity 1 exactly (H° = ΔfH°298 + [H° − H°298]) and needs no model call.
