@@ -346,10 +346,15 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None):
     The rows stream through a block of fixed shape (about BLOCK_ELEMENTS grid
     values): a row leaves its slot when its certified ratio error/bound is
     ≤ 1 + tol (or after ``max_iter`` iterations) and the next row takes the
-    slot.  Every array operation is row-wise, so a row's result depends on
-    the other rows of the batch at most through rounding; the same batch
-    gives the same bits on every run.
+    slot.  Every array operation is row-wise, on C-ordered arrays of one
+    fixed shape (matrix-product libraries choose kernels, and so summation
+    orders, by shape), so a row's result does not depend on which rows share
+    the batch: a species gets the same bits whether it is fitted alone or
+    with a thousand others (checked in tests/test_fit.py).
     """
+    # C order everywhere: a row sum over a strided axis is summed in another order
+    y = np.ascontiguousarray(y, dtype=float)
+    v0 = None if v0 is None else np.ascontiguousarray(v0, dtype=float)
     R, n = y.shape
     tmid = np.asarray(tmid, dtype=float)
     res = _Lawson(np.zeros((R, 5)), np.zeros((R, 5)), np.full(R, np.inf), np.zeros(R),
@@ -687,7 +692,8 @@ def _spread(weights, T_from, T_to):
     near = np.clip(np.searchsorted(T_from, T_to), 0, T_from.size - 1)
     left = np.clip(near - 1, 0, None)
     near = np.where(np.abs(T_from[left] - T_to) < np.abs(T_from[near] - T_to), left, near)
-    return weights[:, near] + 1e-3 * weights.mean(axis=1, keepdims=True)
+    weights = np.ascontiguousarray(weights)
+    return np.ascontiguousarray(weights[:, near]) + 1e-3 * weights.mean(axis=1, keepdims=True)
 
 
 class _SearchState:
