@@ -84,7 +84,7 @@ TMID_FINE_STEP = 10.0
 SEARCH_SPACING, FINAL_SPACING = 80.0, 20.0
 #: Lawson stopping rule: max error ≤ (1 + tol) × certified lower bound, or the iteration cap
 FINAL_TOL, FINAL_ITERATIONS = 0.03, 60
-SEARCH_TOL, COARSE_ITERATIONS, FINE_ITERATIONS = 0.03, 6, 6
+SEARCH_TOL, COARSE_ITERATIONS, FINE_ITERATIONS = 0.03, 4, 6
 #: margin above the classical high-temperature Cp limit before warning (the fit's own error)
 CLASSICAL_MARGIN = 0.01
 #: a design-matrix condition number above this is reported as a warning
@@ -409,8 +409,8 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None):
     while real.any():
         G, rhs = _normal(P, Cb, v, inv, mask, Mq, dres, mm=np.matmul)
         # a ridge at round-off level keeps degenerate rows (exact fits, zero weights) solvable
-        d = np.arange(G.shape[1])
-        G[:, d, d] += 1e-300 + 1e-15 * np.trace(G, axis1=1, axis2=2)[:, None]
+        diag = G.reshape(G.shape[0], -1)[:, :: G.shape[1] + 1]  # a view of the diagonals
+        diag += 1e-300 + 1e-15 * diag.sum(axis=1, keepdims=True)
         theta = theta + np.linalg.solve(G, rhs[:, :, None])[:, :, 0]
         alpha = theta[:, :5]
         beta = np.einsum("rk,rkj->rj", theta[:, 5:], Mq)
