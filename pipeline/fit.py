@@ -743,7 +743,7 @@ def _results(basis, y, tables, opts, keeps, sd, tmid, auto, res):
     Tp = T[None, :] ** np.arange(5)[:, None]  # (5, n)
     use_low = T[None, :] <= tmid[:, None]
     terms = np.where(use_low, _mm(np.abs(low[:, :5]), Tp), _mm(np.abs(high[:, :5]), Tp))
-    ev_cond = (terms / np.abs(cp_f)).max(axis=1)
+    ev_cond = (terms / np.maximum(np.abs(cp_f), 1e-300)).max(axis=1)
     # the jumps of Nasa7Fit.continuity(), for all species at once
     jumps = {}
     for key in ("cp_r", "h_rt", "s_r"):
