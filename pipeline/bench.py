@@ -158,9 +158,30 @@ def _edit(path: Path) -> None:
     path.write_text("".join(lines), encoding="utf-8")
 
 
-def bench_size(n: int, work: Path, *, jobs: int = 1, repeat: int = 2, log=print) -> dict:
-    """Time the cold, no-op and one-changed builds of ``n`` synthetic species and their floor."""
-    root = Path(__file__).resolve().parent.parent
+def frozen_code(work: Path) -> Path:
+    """A copy of the pipeline package (byte-compiled) to run the timed builds from.
+
+    Edits to the working copy during a run (other people's, an editor's) then
+    cannot change the code between the cold build and the rebuilds.
+    """
+    import compileall
+
+    dest = work / "code"
+    if dest.exists():
+        shutil.rmtree(dest)
+    shutil.copytree(Path(__file__).resolve().parent, dest / "pipeline",
+                    ignore=shutil.ignore_patterns("__pycache__", "*.pyc", "*.tmp"))
+    compileall.compile_dir(dest, quiet=1)
+    return dest
+
+
+def bench_size(n: int, work: Path, *, jobs: int = 1, repeat: int = 2, log=print, code: Path | None = None) -> dict:
+    """Time the cold, no-op and one-changed builds of ``n`` synthetic species and their floor.
+
+    The builds run ``python -m pipeline`` from ``code`` (see :func:`frozen_code`;
+    default: this checkout).
+    """
+    root = code or Path(__file__).resolve().parent.parent
     species, out = work / "species", work / "output"
     if species.exists():
         shutil.rmtree(species)
@@ -242,9 +263,10 @@ def cmd_bench(args) -> int:
     try:
         print(f"statherm bench: {platform.python_implementation()} {platform.python_version()}, "
               f"{os.cpu_count()} CPU(s), jobs={args.jobs}, best of {args.repeat}", file=sys.stderr)
+        code = frozen_code(base)
         for n in args.sizes:
             results.append(bench_size(n, base / str(n), jobs=args.jobs, repeat=args.repeat,
-                                      log=lambda s: print(s, file=sys.stderr)))
+                                      log=lambda s: print(s, file=sys.stderr), code=code))
     finally:
         if tmp:
             shutil.rmtree(tmp, ignore_errors=True)

@@ -176,8 +176,9 @@ class Inputs:
         self.dir = d
         self.flags = dict(sorted(flags.items()))
         self.files = []  # (name in folder, display path, bytes, sha256)
+        base = display_path(d)
         for p in species_files(d):
-            disp = display_path(p)
+            disp = p.name if base == "." else f"{base.rstrip('/')}/{p.name}"
             try:
                 data = p.read_bytes()
             except OSError as exc:
