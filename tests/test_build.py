@@ -428,3 +428,32 @@ def test_git_diff_through_the_textconv_driver(tmp_path):
             return False
 
     assert any(numeric(line) for line in plus)
+
+
+def test_progress_bar_on_a_terminal(tmp_path):
+    """On a terminal, a build that runs longer than about a second draws a bar on stderr."""
+    import pty
+    import subprocess
+
+    from pipeline.bench import synthesise
+    from refdata import ROOT
+
+    synthesise(150, tmp_path / "species")
+    master, slave = pty.openpty()
+    proc = subprocess.Popen([sys.executable, "-m", "pipeline", "build", "--species", str(tmp_path / "species"),
+                             "--out", str(tmp_path / "out")], cwd=ROOT, stdin=subprocess.DEVNULL,
+                            stdout=subprocess.DEVNULL, stderr=slave)
+    os.close(slave)
+    chunks = []
+    while True:
+        try:
+            data = os.read(master, 4096)
+        except OSError:  # the terminal closes with the process
+            break
+        if not data:
+            break
+        chunks.append(data)
+    os.close(master)
+    assert proc.wait(timeout=300) == 0
+    text = b"".join(chunks).decode("utf-8", "replace")
+    assert "\rstatherm build [" in text and "/150" in text
