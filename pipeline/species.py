@@ -86,6 +86,14 @@ def _construct_mapping(loader, node, deep=False):
 SpeciesLoader.add_constructor("tag:yaml.org,2002:map", _construct_mapping)
 
 
+def _construct_int(loader, node):
+    """YAML 1.2 core-schema integers are decimal: ``017`` is 17 (YAML 1.1 would read octal)."""
+    return int(loader.construct_scalar(node), 10)
+
+
+SpeciesLoader.add_constructor("tag:yaml.org,2002:int", _construct_int)
+
+
 def load_yaml(text: str) -> Any:
     """Parse YAML text with :class:`SpeciesLoader` (raises ``yaml.YAMLError``).
 
