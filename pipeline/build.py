@@ -47,7 +47,7 @@ from pathlib import Path
 
 from pipeline import __version__
 from pipeline.cache import (
-    CACHE_DIR, FORMAT, Cache, Lock, Progress, Unwritable, code_fingerprint, display_path, file_state,
+    FORMAT, Cache, Lock, Progress, Unwritable, code_fingerprint, display_path, file_state,
     sha256_bytes, sha256_json, species_files,
 )
 from pipeline.diagnostics import Diagnostic, InputError
