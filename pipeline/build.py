@@ -266,7 +266,11 @@ def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list
             errors.extend(Diagnostic(d.file, d.key, d.message + (f" (with {given})" if given else ""))
                           for d in ck.diagnostics)
             continue
-        table = thermo_table(sp, temperature_grid(s.tmin, s.tmax, s.grid_step), s.pressure_pa)
+        try:
+            table = thermo_table(sp, temperature_grid(s.tmin, s.tmax, s.grid_step), s.pressure_pa)
+        except (ValueError, ArithmeticError) as exc:  # data the models cannot take, said per file
+            errors.append(Diagnostic(disp, "", f"cannot compute its thermochemistry: {exc}"))
+            continue
         loaded.append((key, disp, sp, warns, s, table))
 
     fits = []
@@ -289,7 +293,11 @@ def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list
     for (key, disp, sp, warns, s, table), fit in zip(loaded, fits):
         if fit is None:
             continue
-        fragments = species_fragments(sp, table, fit, s)
+        try:
+            fragments = species_fragments(sp, table, fit, s)
+        except ValueError as exc:  # e.g. a record that does not fit its columns
+            errors.append(Diagnostic(disp, "", f"cannot be written: {exc}"))
+            continue
         extra: dict[str, bytes] = {}
         if s.plots:
             try:
