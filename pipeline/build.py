@@ -833,7 +833,8 @@ def show(path: str) -> str:
         import numpy as np
 
         T = np.asarray(sorted(set(T) | {f.tlow, f.tmid, f.thigh}), dtype=float)
-        cp, h, s, g = f.cp(T), f.h(T) / 1e3, f.s(T), f.g(T) / 1e3
+        # rounded as printed, + 0.0 so that a value that rounds to zero never shows as -0.0000
+        cp, h, s, g = (np.round(v, 4) + 0.0 for v in (f.cp(T), f.h(T) / 1e3, f.s(T), f.g(T) / 1e3))
         for i, t in enumerate(T):
             mark = " Tmid" if t == f.tmid else ""
             lines.append(f"  {t:8.2f} {cp[i]:13.4f} {h[i]:12.4f} {s[i]:12.4f} {g[i]:12.4f}{mark}")
