@@ -311,19 +311,28 @@ def test_sigkill_at_random_moments(tmp_path):
 
 
 def test_two_builds_into_one_folder_are_serialised(tmp_path):
+    import threading
+
     from pipeline.cache import Lock
 
     species, out = database(tmp_path)
     edit(species / "CH4.yaml", "enthalpy: -74.52", "enthalpy: -74.00")
+    before = snapshot(out)
+    lines: list[str] = []
     with Lock(out, quiet=True):
         proc = popen("build", "--species", str(species), "--out", str(out))
-        time.sleep(1.5)
-        assert proc.poll() is None  # waiting for the lock
-        unchanged = snapshot(out)
-    _, err = proc.communicate(timeout=120)
-    assert proc.returncode == 0, err
-    assert "waiting for another build" in err
-    assert unchanged != snapshot(out)
+        reader = threading.Thread(target=lambda: lines.extend(proc.stderr), daemon=True)
+        reader.start()
+        deadline = time.monotonic() + 120
+        while not any("waiting for another build" in line for line in lines):
+            assert proc.poll() is None and time.monotonic() < deadline, lines
+            time.sleep(0.05)
+        time.sleep(0.5)
+        assert proc.poll() is None  # still waiting: it has written nothing
+        assert snapshot(out) == before
+    assert proc.wait(timeout=120) == 0, lines
+    reader.join(timeout=10)
+    assert snapshot(out) != before
 
 
 def test_unusable_output_folder_gives_a_clear_error(tmp_path, monkeypatch):
@@ -431,14 +440,16 @@ def test_git_diff_through_the_textconv_driver(tmp_path):
 
 
 def test_progress_bar_on_a_terminal(tmp_path):
-    """On a terminal, a build that runs longer than about a second draws a bar on stderr."""
+    """On a terminal, a build that runs longer than about a second draws a bar on stderr
+    (and a shorter one does not)."""
     import pty
+    import re
     import subprocess
 
     from pipeline.bench import synthesise
     from refdata import ROOT
 
-    synthesise(150, tmp_path / "species")
+    synthesise(300, tmp_path / "species")
     master, slave = pty.openpty()
     proc = subprocess.Popen([sys.executable, "-m", "pipeline", "build", "--species", str(tmp_path / "species"),
                              "--out", str(tmp_path / "out")], cwd=ROOT, stdin=subprocess.DEVNULL,
@@ -456,4 +467,9 @@ def test_progress_bar_on_a_terminal(tmp_path):
     os.close(master)
     assert proc.wait(timeout=300) == 0
     text = b"".join(chunks).decode("utf-8", "replace")
-    assert "\rstatherm build [" in text and "/150" in text
+    seconds = float(re.search(r"\((\d+\.\d+) s\)", text).group(1))  # the build's own timing
+    drawn = "\rstatherm build [" in text and "/300" in text
+    if seconds > 1.5:
+        assert drawn, text
+    elif seconds < 0.9:
+        assert not drawn, text
