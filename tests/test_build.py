@@ -59,6 +59,11 @@ def test_one_edited_species_changes_only_its_files(tmp_path):
     for rel in before:  # every other species' files keep their bytes and their mtime
         if "/" in rel and "CH4" not in Path(rel).name:
             assert after[rel] == before[rel], rel
+    from pipeline.readers import read_records
+
+    old = {f.name: f for f in read_records(before["thermo.dat"][0].decode())}
+    new = {f.name: f for f in read_records(after["thermo.dat"][0].decode())}
+    assert {n for n in new if new[n] != old[n]} == {"CH4"}  # only its record changed
 
 
 def test_removed_species_leaves_no_files(tmp_path):
