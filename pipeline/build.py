@@ -126,6 +126,8 @@ def register(sub) -> None:
                                    "would write from the species, the settings and the current code.",
                        epilog="Exit codes: 0 up to date, 1 stale or input errors, 2 usage errors.")
     _common(c)
+    c.add_argument("--strict", action="store_true",
+                   help="rebuild in memory and compare bytes (same machine and libraries only)")
     c.set_defaults(func=cmd_check)
 
     s = sub.add_parser("show", help="readable view of a fixed-column file (git textconv)",
@@ -157,7 +159,8 @@ def cmd_build(args) -> int:
 
 
 def cmd_check(args) -> int:
-    return check(args.species, args.out, flags=_flags(args), verbosity=_verbosity(args), as_json=args.json)
+    return check(args.species, args.out, flags=_flags(args), verbosity=_verbosity(args), as_json=args.json,
+                 strict=args.strict)
 
 
 # --------------------------------------------------------------------------
@@ -462,6 +465,7 @@ def _plan(inputs: Inputs, out: Path, cache: Cache | None, *, jobs: int | None, s
         extra = e.get("_extra")
         for rel, sha in e.get("files", {}).items():
             files[rel] = extra[rel] if extra else cache.blob(sha)
+    files[PROVENANCE] = _provenance_record(inputs, files, left_out=bad)
     plan.files = files
     plan.manifest = {
         "format": FORMAT,
@@ -669,8 +673,17 @@ def _build_locked(inputs, out, cache, t0, *, jobs, keep_going, verbosity, as_jso
 
 
 def check(species_dir="species", out_dir="output", *, flags: dict | None = None, verbosity: int = 1,
-          as_json: bool = False) -> int:
-    """``statherm check``: exit 1, naming what is stale, if ``out_dir`` is not what a build would write."""
+          as_json: bool = False, strict: bool = False) -> int:
+    """``statherm check``: exit 1, naming what is stale, if ``out_dir`` is not what a build would write.
+
+    First the output's own record (``provenance.json``) is compared with the
+    species files, the settings and the code, and every output file with the
+    hash recorded for it.  If all agree the output is up to date and nothing is
+    computed, so the answer does not depend on the machine (another CPU or BLAS
+    may change the last bits of a fit, never whether the output is stale).
+    Otherwise — or always with ``strict`` — the database is rebuilt in memory
+    and compared byte for byte, to name what differs and why.
+    """
     inputs = Inputs(species_dir, flags or {})
     out = Path(out_dir)
     if not out.is_dir():
@@ -682,13 +695,19 @@ def check(species_dir="species", out_dir="output", *, flags: dict | None = None,
     except InputError:
         cache = None  # read-only checkout: check without a cache
     if cache is None:
-        return _check(inputs, out, None, verbosity, as_json)
+        return _check(inputs, out, None, verbosity, as_json, strict)
     with Lock(out, quiet=verbosity == 0):
         cache.recover()
-        return _check(inputs, out, cache, verbosity, as_json)
+        return _check(inputs, out, cache, verbosity, as_json, strict)
 
 
-def _check(inputs: Inputs, out: Path, cache: Cache | None, verbosity: int, as_json: bool) -> int:
+def _check(inputs: Inputs, out: Path, cache: Cache | None, verbosity: int, as_json: bool,
+           strict: bool = False) -> int:
+    if not strict and not _check_provenance(inputs, out):
+        if verbosity > 1:
+            _note(as_json, f"statherm: {out.as_posix()} is up to date")
+        return EXIT_OK
+    # stale (or strict): rebuild in memory to say exactly what differs and why
     manifest = cache.load_manifest() if cache else None
     if (manifest and manifest.get("build_key") == inputs.build_key and manifest.get("complete")
             and _outputs_unchanged(out, manifest)):
@@ -720,6 +739,79 @@ def _check(inputs: Inputs, out: Path, cache: Cache | None, verbosity: int, as_js
         _note(as_json, f"statherm: {out.as_posix()} is stale ({len(writes)} file(s) differ, {len(deletes)} left over): "
               "run `statherm build` (or `make`)")
     return EXIT_DATA
+
+
+#: the output's record of what it was built from (species, settings, code) and of its files
+PROVENANCE = "provenance.json"
+
+
+def _normalised(rel: str, data: bytes) -> bytes:
+    """The bytes of an output file as recorded: REPORT.md without its since-last-build
+    section, which comes from the local cache rather than from the inputs."""
+    if rel == "REPORT.md":
+        from pipeline.diff import strip_since_last_build
+
+        return strip_since_last_build(data.decode("utf-8")).encode("utf-8")
+    return data
+
+
+def _provenance_record(inputs: Inputs, files: dict[str, bytes], left_out=frozenset()) -> bytes:
+    """``provenance.json``: tool version, code fingerprint, settings, the species files in
+    the output (not those ``left_out`` by ``--keep-going``) and the sha256 of every other
+    output file (deterministic JSON, no paths, no times)."""
+    import json
+
+    doc = {
+        "format": "statherm-provenance",
+        "format_version": 1,
+        "tool_version": __version__,
+        "code": inputs.code,
+        "settings_file": inputs.settings_sha,
+        "flags": inputs.flags,
+        "species": {name: sha for name, disp, _, sha in inputs.files if disp not in left_out},
+        "files": {rel: sha256_bytes(_normalised(rel, data)) for rel, data in sorted(files.items())
+                  if rel != PROVENANCE},
+    }
+    return (json.dumps(doc, indent=1, sort_keys=True, ensure_ascii=False) + "\n").encode("utf-8")
+
+
+def _check_provenance(inputs: Inputs, out: Path) -> list[Diagnostic]:
+    """What makes ``out`` stale, judged from its provenance record (empty: up to date)."""
+    import json
+
+    where = (out / PROVENANCE).as_posix()
+    try:
+        rec = json.loads((out / PROVENANCE).read_text(encoding="utf-8"))
+        recorded_species, recorded_files = dict(rec["species"]), dict(rec["files"])
+    except FileNotFoundError:
+        return [Diagnostic(where, "", "missing: the output was not written by this version of `statherm build`")]
+    except (OSError, ValueError, KeyError, TypeError) as exc:
+        return [Diagnostic(where, "", f"unreadable ({type(exc).__name__}): rebuild the output")]
+    diags = []
+    now = {name: (disp, sha) for name, disp, _, sha in inputs.files}
+    for name in sorted(set(now) | set(recorded_species)):
+        disp = now[name][0] if name in now else (inputs.dir / name).as_posix()
+        if name not in recorded_species:
+            diags.append(Diagnostic(disp, "", "new species file, not yet in the output"))
+        elif name not in now:
+            diags.append(Diagnostic(disp, "", "removed, but still in the output"))
+        elif now[name][1] != recorded_species[name]:
+            diags.append(Diagnostic(disp, "", "changed since the output was built"))
+    if rec.get("settings_file") != inputs.settings_sha or rec.get("flags") != inputs.flags:
+        diags.append(Diagnostic(inputs.settings_file, "", "settings changed since the output was built"))
+    if rec.get("code") != inputs.code or rec.get("tool_version") != __version__:
+        diags.append(Diagnostic("pipeline/", "", "code changed since the output was built"))
+    for rel, sha in sorted(recorded_files.items()):
+        try:
+            data = (out / rel).read_bytes()
+        except OSError:
+            diags.append(Diagnostic((out / rel).as_posix(), "", "missing"))
+            continue
+        if sha256_bytes(_normalised(rel, data)) != sha:
+            diags.append(Diagnostic((out / rel).as_posix(), "", "modified since the build that wrote it"))
+    for rel in sorted(_leftovers(out, {**recorded_files, PROVENANCE: b""})):
+        diags.append(Diagnostic((out / rel).as_posix(), "", "not written by the last build (left over)"))
+    return diags
 
 
 def _stale_reasons(inputs, out, plan, manifest, writes, deletes) -> list[Diagnostic]:

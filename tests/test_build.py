@@ -478,3 +478,35 @@ def test_progress_bar_on_a_terminal(tmp_path):
         assert drawn, text
     elif seconds < 0.9:
         assert not drawn, text
+
+
+def test_check_is_machine_independent(tmp_path, monkeypatch):
+    """An up-to-date output stays up to date on a machine whose arithmetic differs in the
+    last bits (simulated by perturbing every fitted coefficient by 1e-13 relative): the
+    default check judges from provenance.json; --strict compares rebuilt bytes."""
+    import dataclasses
+
+    import pipeline.fit
+
+    species, out = database(tmp_path)
+    shutil.rmtree(out / ".statherm-cache")  # a fresh clone: no cache
+    real = pipeline.fit.fit_tables
+
+    def other_machine(tables, options):
+        return [dataclasses.replace(f, low=tuple(a * (1 + 1e-13) for a in f.low),
+                                    high=tuple(a * (1 + 1e-13) for a in f.high))
+                for f in real(tables, options)]
+
+    monkeypatch.setattr(pipeline.fit, "fit_tables", other_machine)
+    args = ("check", "--species", str(species), "--out", str(out))
+    assert run(*args)[0] == 0
+    rc, _, err = run(*args, "--strict")
+    assert rc == 1 and "thermo.yaml: differs from a fresh build" in err
+
+
+def test_check_notices_a_hand_edited_output(tmp_path):
+    species, out = database(tmp_path)
+    table = out / "tables" / "CO2.csv"
+    table.write_bytes(table.read_bytes().replace(b"200.00,", b"200.01,", 1))
+    rc, _, err = run("check", "--species", str(species), "--out", str(out))
+    assert rc == 1 and "CO2.csv" in err
