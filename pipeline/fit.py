@@ -336,118 +336,125 @@ class _Lawson:
 #: exponent of the weight update w ← w |r|^k (Lawson: k = 1; 1.5 converges about
 #: 1.5× faster here, and the stopping rule's certificate holds for any weights)
 LAWSON_POWER = 1.5
-#: rows per block of the Lawson iteration: about this many grid values, so the work stays in cache
+#: rows per group of the Lawson iteration: about this many grid values, so the work stays in cache
 BLOCK_ELEMENTS = 32768
+#: rows per matrix product: every product is a stack of products of this one shape
+TILE = 16
+
+
+def _tiled(a, b):
+    """a @ b for a (R, k) with R a multiple of TILE, as a stack of (TILE, k) @ (k, m) products.
+
+    Matrix-product libraries choose kernels, and so summation orders, by shape: with one
+    fixed shape per call a row's result does not depend on how many rows share the call.
+    """
+    R, k = a.shape
+    return np.matmul(a.reshape(R // TILE, TILE, k), b).reshape(R, b.shape[1])
 
 
 def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None):
     """Minimax relative fits of the rows of y (R, n), row r with its own Tmid ``tmid[r]``.
 
-    The rows stream through a block of fixed shape (about BLOCK_ELEMENTS grid
-    values): a row leaves its slot when its certified ratio error/bound is
-    ≤ 1 + tol (or after ``max_iter`` iterations) and the next row takes the
-    slot.  Every array operation is row-wise, on C-ordered arrays of one
-    fixed shape (matrix-product libraries choose kernels, and so summation
-    orders, by shape), so a row's result does not depend on which rows share
-    the batch: a species gets the same bits whether it is fitted alone or
-    with a thousand others (checked in tests/test_fit.py).
+    The rows go through in groups of about BLOCK_ELEMENTS grid values; inside a
+    group a row stops when its certified ratio error/bound is ≤ 1 + tol (or after
+    ``max_iter`` iterations), and the rows still iterating are packed together
+    whenever that saves a tile of TILE rows.  Every array operation is row-wise,
+    on C-ordered arrays, with matrix products of one fixed shape (:func:`_tiled`),
+    so a row's result does not depend on which rows share the batch: a species
+    gets the same bits whether it is fitted alone or with a thousand others
+    (checked in tests/test_fit.py).
     """
     # C order everywhere: a row sum over a strided axis is summed in another order
     y = np.ascontiguousarray(y, dtype=float)
-    v0 = None if v0 is None else np.ascontiguousarray(v0, dtype=float)
     R, n = y.shape
     tmid = np.asarray(tmid, dtype=float)
     res = _Lawson(np.zeros((R, 5)), np.zeros((R, 5)), np.full(R, np.inf), np.zeros(R),
                   np.zeros((R, n)), np.zeros(R, dtype=int))
     if R == 0:
         return res
-    # Fixed, tile-friendly shapes for the matrix products: rows per block a multiple of 16,
-    # grid padded to a multiple of 16 with inert points (1/y = 0, weight 0), 16 and 8 columns.
+    # grid padded to a multiple of 16 with inert points (1/y = 0, weight 0); 16 and 8 columns
     npad = -(-n // 16) * 16
-    B = max(16, (BLOCK_ELEMENTS // npad) // 16 * 16)
     P = np.zeros((npad, 16))
     P[:n, :15] = basis.P
     Cb = np.zeros((npad, 8))
     Cb[:n, :5] = basis.C
     CT = np.ascontiguousarray(Cb[:, :5].T)
-
-    def pad(a, fill):
-        out = np.full((R, npad), fill)
-        out[:, :n] = a
-        return out
-
-    y_all = pad(y, 1.0)
-    inv_all = pad(1.0 / y, 0.0)
-    mask_all = pad(basis.mask(tmid), 0.0)
     Mq_all = basis.qmap(tmid, sd)
-    v_all = pad(inv_all[:, :n] / n if v0 is None else v0 / (v0 * y).sum(axis=1, keepdims=True), 0.0)
-    row = np.zeros(B, dtype=int)  # the row each slot works on
-    real = np.zeros(B, dtype=bool)  # False: the slot repeats a finished row (results discarded)
-    it = np.zeros(B, dtype=int)
-    best = np.full(B, np.inf)
-    bnd = np.zeros(B)
-    nxt = 0
-    ys, inv, mask, Mq, v, dres = (np.empty((B,) + a.shape[1:])
-                                  for a in (y_all, inv_all, mask_all, Mq_all, v_all, y_all))
-    theta = np.zeros((B, 5 + Mq_all.shape[1]))
-
-    def load(slots, rows, is_real):
-        nonlocal ys, inv, mask, Mq, v, dres, theta
-        row[slots] = rows
-        real[slots] = is_real
-        it[slots] = 0
-        best[slots] = np.inf
-        bnd[slots] = 0.0
-        ys[slots], inv[slots], mask[slots] = y_all[rows], inv_all[rows], mask_all[rows]
-        Mq[slots], v[slots] = Mq_all[rows], v_all[rows]
-        theta[slots] = 0.0
-        dres[slots] = y_all[rows]
-
-    first = np.arange(min(B, R))
-    load(np.arange(B), np.r_[first, np.zeros(B - first.size, dtype=int)], np.arange(B) < R)
-    nxt = first.size
-    while real.any():
-        G, rhs = _normal(P, Cb, v, inv, mask, Mq, dres, mm=np.matmul)
-        # a ridge at round-off level keeps degenerate rows (exact fits, zero weights) solvable
-        diag = G.reshape(G.shape[0], -1)[:, :: G.shape[1] + 1]  # a view of the diagonals
-        diag += 1e-300 + 1e-15 * diag.sum(axis=1, keepdims=True)
-        theta = theta + np.linalg.solve(G, rhs[:, :, None])[:, :, 0]
-        alpha = theta[:, :5]
-        beta = np.einsum("rk,rkj->rj", theta[:, 5:], Mq)
-        dres = ys - (alpha @ CT + mask * (beta @ CT))
-        e = np.abs(dres)
-        ar = e * inv
-        err = ar.max(axis=1)
-        wa = v * e
-        den = wa.sum(axis=1)
-        safe = np.where(den > 0, den, 1.0)
-        bound = (wa * ar).sum(axis=1) / safe
-        it += 1
-        better = err < best
-        best = np.where(better, err, best)
-        bnd = np.maximum(bnd, bound)
-        if LAWSON_POWER == 1.0:
-            v = v * ar / safe[:, None]  # Lawson: w ← w |r| / Σ w|r|, with v = w / y
+    nq = Mq_all.shape[1]
+    mask_all = basis.mask(tmid)
+    group = max(TILE, (BLOCK_ELEMENTS // npad) // TILE * TILE)
+    for g0 in range(0, R, group):
+        rows = np.arange(g0, min(R, g0 + group))
+        m = rows.size
+        slots = -(-m // TILE) * TILE
+        row = np.r_[rows, np.full(slots - m, rows[-1])]  # the row each slot works on
+        alive = np.arange(slots) < m  # False: a finished row or a padding copy (results discarded)
+        ys = np.ones((slots, npad))
+        ys[:, :n] = y[row]
+        inv = np.zeros((slots, npad))
+        inv[:, :n] = 1.0 / ys[:, :n]
+        mask = np.zeros((slots, npad))
+        mask[:, :n] = mask_all[row]
+        Mq = Mq_all[row]
+        v = np.zeros((slots, npad))
+        if v0 is None:
+            v[:, :n] = inv[:, :n] / n
         else:
-            v = v * ar * np.sqrt(ar)
-            v /= np.maximum((v * ys).sum(axis=1, keepdims=True), 1e-300)
-        rb = real & better
-        res.error[row[rb]] = err[rb]
-        res.alpha[row[rb]] = alpha[rb]
-        res.beta[row[rb]] = beta[rb]
-        finished = (it >= 2) & ((best <= (1.0 + tol) * bnd) | (best <= 1e-14)) | (it >= max_iter)
-        rf = np.flatnonzero(real & finished)
-        res.bound[row[rf]] = bnd[rf]
-        res.iterations[row[rf]] = it[rf]
-        res.weights[row[rf]] = v[rf, :n]
-        done_slots = np.flatnonzero(finished)
-        if done_slots.size:
-            take = min(R - nxt, done_slots.size)
-            load(done_slots[:take], np.arange(nxt, nxt + take), True)
-            nxt += take
-            rest = done_slots[take:]
-            if rest.size:  # nothing left to start: repeat the finished row, discard its results
-                load(rest, row[rest], False)
+            w0 = np.ascontiguousarray(v0[row], dtype=float)
+            v[:, :n] = w0 / (w0 * y[row]).sum(axis=1, keepdims=True)
+        dres = ys.copy()
+        theta = np.zeros((slots, 5 + nq))
+        it = 0
+        best = np.full(slots, np.inf)
+        bnd = np.zeros(slots)
+        while alive.any():
+            G, rhs = _normal(P, Cb, v, inv, mask, Mq, dres, mm=_tiled)
+            # a ridge at round-off level keeps degenerate rows (exact fits, zero weights) solvable
+            diag = G.reshape(G.shape[0], -1)[:, :: G.shape[1] + 1]  # a view of the diagonals
+            diag += 1e-300 + 1e-15 * diag.sum(axis=1, keepdims=True)
+            theta = theta + np.linalg.solve(G, rhs[:, :, None])[:, :, 0]
+            alpha = theta[:, :5]
+            beta = theta[:, 5:6] * Mq[:, 0]
+            for k in range(1, nq):
+                beta = beta + theta[:, 5 + k : 6 + k] * Mq[:, k]
+            fitted = _tiled(np.concatenate([alpha, beta]), CT)
+            dres = ys - (fitted[:slots] + mask * fitted[slots:])
+            e = np.abs(dres)
+            ar = e * inv
+            err = ar.max(axis=1)
+            wa = v * e
+            den = wa.sum(axis=1)
+            safe = np.where(den > 0, den, 1.0)
+            bound = (wa * ar).sum(axis=1) / safe
+            it += 1
+            better = err < best
+            best = np.where(better, err, best)
+            bnd = np.maximum(bnd, bound)
+            if LAWSON_POWER == 1.0:
+                v = v * ar / safe[:, None]  # Lawson: w ← w |r| / Σ w|r|, with v = w / y
+            else:
+                v = v * ar * np.sqrt(ar)
+                v /= np.maximum((v * ys).sum(axis=1, keepdims=True), 1e-300)
+            ab = alive & better
+            res.error[row[ab]] = err[ab]
+            res.alpha[row[ab]] = alpha[ab]
+            res.beta[row[ab]] = beta[ab]
+            finished = alive & (((it >= 2) & ((best <= (1.0 + tol) * bnd) | (best <= 1e-14)))
+                                | (it >= max_iter))
+            rf = np.flatnonzero(finished)
+            if rf.size:
+                res.bound[row[rf]] = bnd[rf]
+                res.iterations[row[rf]] = it
+                res.weights[row[rf]] = v[rf, :n]
+                alive &= ~finished
+                live = np.flatnonzero(alive)
+                need = -(-live.size // TILE) * TILE
+                if 0 < need < slots:  # pack the rows still iterating into fewer tiles
+                    keep = np.r_[live, np.full(need - live.size, live[0])]
+                    slots = need
+                    row, alive = row[keep], np.arange(slots) < live.size
+                    ys, inv, mask, Mq, v, dres = (np.ascontiguousarray(a[keep]) for a in (ys, inv, mask, Mq, v, dres))
+                    theta, best, bnd = theta[keep], best[keep], bnd[keep]
     # the bound is exact in exact arithmetic; at round-off level (exact fits) it may exceed the error
     res.bound = np.minimum(res.bound, res.error)
     return res
