@@ -248,11 +248,11 @@ def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list
     """
     from pipeline.fit import fit_options, fit_tables
     from pipeline.species import _Checker, check_ranges, parse_species
-    from pipeline.thermo import temperature_grid, thermo_table
+    from pipeline.thermo import temperature_grid, thermo_table, thermo_tables
     from pipeline.writers import species_fragments
 
     errors: list[Diagnostic] = []
-    loaded = []  # (key, disp, species, warnings, settings, table)
+    parsed = []  # (key, disp, species, warnings, settings); loaded adds the table
     glob = settings.replace(**flags)
     for key, disp, data in items:
         try:
@@ -269,12 +269,23 @@ def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list
             errors.extend(Diagnostic(d.file, d.key, d.message + (f" (with {given})" if given else ""))
                           for d in ck.diagnostics)
             continue
+        parsed.append((key, disp, sp, warns, s))
+    # the species sharing a grid and a pressure are computed together (thermo_tables)
+    grids: dict[tuple, list[int]] = {}
+    for k, (*_, s) in enumerate(parsed):
+        grids.setdefault((float(s.tmin), float(s.tmax), float(s.grid_step), float(s.pressure_pa)), []).append(k)
+    computed: dict[int, object] = {}
+    for (tmin, tmax, step, pressure), group in grids.items():
+        T = temperature_grid(tmin, tmax, step)
         try:
-            table = thermo_table(sp, temperature_grid(s.tmin, s.tmax, s.grid_step), s.pressure_pa)
-        except (ValueError, ArithmeticError) as exc:  # data the models cannot take, said per file
-            errors.append(Diagnostic(disp, "", f"cannot compute its thermochemistry: {exc}"))
-            continue
-        loaded.append((key, disp, sp, warns, s, table))
+            computed.update(zip(group, thermo_tables([parsed[k][2] for k in group], T, pressure)))
+        except (ValueError, ArithmeticError):  # find the file(s) the models cannot take
+            for k in group:
+                try:
+                    computed[k] = thermo_table(parsed[k][2], T, pressure)
+                except (ValueError, ArithmeticError) as exc:  # said per file
+                    errors.append(Diagnostic(parsed[k][1], "", f"cannot compute its thermochemistry: {exc}"))
+    loaded = [item + (computed[k],) for k, item in enumerate(parsed) if k in computed]
 
     fits = []
     if loaded:

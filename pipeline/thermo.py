@@ -13,7 +13,7 @@ import numpy as np
 from scipy import constants as C
 
 from pipeline.elements import ELEMENT_H298_H0
-from pipeline.statmech import species_terms
+from pipeline.statmech import stacked_terms
 
 T_REF = 298.15  # [K]
 
@@ -103,6 +103,7 @@ def thermo_table(species, T=None, pressure: float = C.bar) -> ThermoTable:
     """Compute the :class:`ThermoTable` of ``species`` on the grid ``T`` [K].
 
     H°−H°298 = RT·(H−H0)/RT − [H°298 − H°0];  −(G°−H°298)/T = S° − (H°−H°298)/T.
+    The one-species case of :func:`thermo_tables` (the same bits).
 
     Examples
     --------
@@ -113,28 +114,45 @@ def thermo_table(species, T=None, pressure: float = C.bar) -> ThermoTable:
     >>> round(t.s298, 3), round(float(t.cp[1]), 4)
     (154.846, 20.7862)
     """
+    return thermo_tables([species], T, pressure)[0]
+
+
+def thermo_tables(species_list, T=None, pressure: float = C.bar) -> list[ThermoTable]:
+    """:func:`thermo_table` of many species on one grid ``T`` [K], computed together.
+
+    The partition-function sums run on (species × temperature) arrays
+    (:func:`pipeline.statmech.stacked_terms`); a species' table is the same,
+    bit for bit, alone or in any list.
+
+    >>> import pipeline.species as sp
+    >>> ar = sp.Species(name="Ar", formula=(("Ar", 1),), shape="atom", symmetry=1,
+    ...                 mass=39.948 * C.atomic_mass, sources=("x",), formation_enthalpy=0.0)
+    >>> [round(t.s298, 3) for t in thermo_tables([ar, ar])]
+    [154.846, 154.846]
+    """
+    species_list = list(species_list)
     if T is None:
         T = temperature_grid()
     T = np.atleast_1d(np.asarray(T, dtype=float))
-    terms = species_terms(species, np.append(T, T_REF), pressure)
+    if not species_list:
+        return []
+    Tx = np.append(T, T_REF)
+    terms = stacked_terms(species_list, Tx, pressure)
     R = C.R
-    h_h0 = R * np.append(T, T_REF) * terms.h_rt
-    h298_h0 = float(h_h0[-1])
-    s = R * terms.s_r[:-1]
-    cp = R * terms.cp_r[:-1]
-    dh = h_h0[:-1] - h298_h0
-    dhf = formation_at_298(species, h298_h0)
-    return ThermoTable(
-        name=species.name,
-        T=T,
-        cp=cp,
-        s=s,
-        h_minus_h298=dh,
-        g_fn=s - dh / T,
-        h=dhf + dh,
-        dhf298=dhf,
-        s298=float(R * terms.s_r[-1]),
-        cp298=float(R * terms.cp_r[-1]),
-        h298_minus_h0=h298_h0,
-        pressure=pressure,
-    )
+    h_h0 = R * Tx * terms.h_rt
+    h298_h0 = h_h0[:, -1:]
+    s = R * terms.s_r[:, :-1]
+    cp = R * terms.cp_r[:, :-1]
+    dh = h_h0[:, :-1] - h298_h0
+    g_fn = s - dh / T
+    s298 = (R * terms.s_r[:, -1]).tolist()
+    cp298 = (R * terms.cp_r[:, -1]).tolist()
+    out = []
+    for i, sp in enumerate(species_list):
+        h0 = float(h298_h0[i, 0])
+        dhf = formation_at_298(sp, h0)
+        out.append(ThermoTable(
+            name=sp.name, T=T, cp=cp[i], s=s[i], h_minus_h298=dh[i], g_fn=g_fn[i], h=dhf + dh[i],
+            dhf298=dhf, s298=s298[i], cp298=cp298[i], h298_minus_h0=h0, pressure=pressure,
+        ))
+    return out

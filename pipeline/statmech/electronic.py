@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from pipeline.statmech.terms import Terms, level_sum
@@ -36,4 +38,18 @@ def electronic(levels, T) -> Terms:
     """
     g = np.array([lv[0] for lv in levels], dtype=float)
     e = np.array([lv[1] for lv in levels], dtype=float)
+    if e.size and not e.any():  # ground level(s) only: q = Σ g, no energy, no heat capacity
+        T = np.atleast_1d(np.asarray(T, dtype=float))
+        return Terms(np.full(T.shape, ground_entropy(levels)), np.zeros(T.shape), np.zeros(T.shape))
     return level_sum(theta(e), g, T)
+
+
+def ground_entropy(levels) -> float | None:
+    """S/R = ln Σ g_i of levels that all lie at zero energy, else None (levels above the ground).
+
+    >>> round(ground_entropy([(2, 0.0)]), 6), ground_entropy([(2, 0.0), (2, 1e4)])
+    (0.693147, None)
+    """
+    if any(lv[1] != 0.0 for lv in levels) or not levels:
+        return None
+    return math.log(float(sum(lv[0] for lv in levels)))

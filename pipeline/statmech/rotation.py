@@ -98,18 +98,18 @@ def nonlinear_rotor(thetas, symmetry: int, T, optical_isomers: int = 1) -> Terms
 
     Parameters
     ----------
-    thetas : sequence of 3 floats
-        Rotational temperatures θ_A, θ_B, θ_C [K].
-    symmetry : int
+    thetas : sequence of 3 floats, or array (S, 3)
+        Rotational temperatures θ_A, θ_B, θ_C [K] (one row per species).
+    symmetry : int or array (S,)
         External symmetry number σ [-].
-    T : array
+    T : array (m,)
         Temperatures [K].
-    optical_isomers : int
+    optical_isomers : int or array (S,)
         Number of optical isomers n_opt (adds R ln n_opt to S).
 
     Returns
     -------
-    :class:`Terms`.
+    :class:`Terms` of arrays (m,), or (S, m) for S species.
 
     Examples
     --------
@@ -121,11 +121,10 @@ def nonlinear_rotor(thetas, symmetry: int, T, optical_isomers: int = 1) -> Terms
     (1951); R. C. Tolman / McQuarrie, *Statistical Mechanics* (1976), eq. 8-35.
     """
     T = np.atleast_1d(np.asarray(T, dtype=float))
-    a, b, c_ = (float(x) for x in thetas)
+    th = np.asarray(thetas, dtype=float)
+    a, b, c_ = th[..., 0, None], th[..., 1, None], th[..., 2, None]
     corr = (2 * (a + b + c_) - (a * b / c_ + b * c_ / a + c_ * a / b)) / 12.0
-    s = (
-        math.log(optical_isomers * math.sqrt(math.pi) / symmetry)
-        + 0.5 * np.log(T**3 / (a * b * c_))
-        + 1.5
-    )
-    return Terms(s, 1.5 - corr / T, np.full_like(T, 1.5))
+    lead = np.log(np.asarray(optical_isomers, dtype=float) * math.sqrt(math.pi)
+                  / np.asarray(symmetry, dtype=float))[..., None]
+    s = lead + 0.5 * np.log(T**3 / (a * b * c_)) + 1.5
+    return Terms(s, 1.5 - corr / T, np.full(s.shape, 1.5))
