@@ -34,6 +34,7 @@ formats are described in ``docs/format.md``.
 from __future__ import annotations
 
 import dataclasses
+import functools
 from pathlib import PurePath
 
 import numpy as np
@@ -111,38 +112,48 @@ def species_fragments(species, table, fit, settings) -> dict[str, str]:
         The build settings (the species file's ``fit:`` overrides are applied here).
     """
     from pipeline import __version__
-    from pipeline.thermo import T_REF, temperature_grid
     from pipeline.writers.formats import render
 
     s = settings.for_species(species)
+    pressure = s.pressure_pa
     fit = dataclasses.replace(fit, name=species.name, formula=tuple(species.formula), charge=int(species.charge))
     printed = printed_fit(fit)
     quality = fit.quality.as_dict() if hasattr(fit.quality, "as_dict") else {}
     elements = record_elements(species.formula, species.charge)
     record = _record(printed, identifier(species.sha256) if species.sha256 else "")
 
+    # the printed polynomials at the table temperatures, over the fit grid, at 298.15 K and on both sides of Tmid
+    T, cp, sm, dh, gfn = _at_table_step(species, table, _table_grid(s.tmin, s.tmax, s.table_step), pressure)
+    Tf = np.asarray(table.T, dtype=float)
+    inside = (Tf >= printed.tlow) & (Tf <= printed.thigh)
+    Tf = Tf[inside]
+    v = _printed_values(printed, (T, Tf))
+    (cp_f, cpf_grid), (h_t, hf_grid), (s_f, sf_grid) = v["cp"], v["h"], v["s"]
+    h298 = v["h298"]
+    u = _uncertainty(species, T, pressure)
+
     # property table at the table step, with the printed polynomials beside it
-    tab = _at_table_step(species, table, temperature_grid(s.tmin, s.tmax, s.table_step), s.pressure_pa)
-    u = _uncertainty(species, tab.T, s.pressure_pa)
-    T = tab.T
-    h298 = float(printed.h(T_REF))
-    cp_f, s_f, dh_f = printed.cp(T), printed.s(T), printed.h(T) - h298
+    dh_f = h_t - h298
     gfn_f = s_f - dh_f / T
     columns = [
         ("T [K]", T, ".2f"),
-        ("Cp [J/mol/K]", tab.cp, ".6f"), ("S [J/mol/K]", tab.s, ".6f"),
-        ("H-H298 [kJ/mol]", tab.h_minus_h298 / 1e3, ".6f"), ("-(G-H298)/T [J/mol/K]", tab.g_fn, ".6f"),
+        ("Cp [J/mol/K]", cp, ".6f"), ("S [J/mol/K]", sm, ".6f"),
+        ("H-H298 [kJ/mol]", dh / 1e3, ".6f"), ("-(G-H298)/T [J/mol/K]", gfn, ".6f"),
         ("Cp fit [J/mol/K]", cp_f, ".6f"), ("S fit [J/mol/K]", s_f, ".6f"),
         ("H-H298 fit [kJ/mol]", dh_f / 1e3, ".6f"), ("-(G-H298)/T fit [J/mol/K]", gfn_f, ".6f"),
-        ("Cp residual [J/mol/K]", cp_f - tab.cp, ".6f"), ("S residual [J/mol/K]", s_f - tab.s, ".6f"),
-        ("H-H298 residual [kJ/mol]", (dh_f - tab.h_minus_h298) / 1e3, ".6f"),
-        ("-(G-H298)/T residual [J/mol/K]", gfn_f - tab.g_fn, ".6f"),
+        ("Cp residual [J/mol/K]", cp_f - cp, ".6f"), ("S residual [J/mol/K]", s_f - sm, ".6f"),
+        ("H-H298 residual [kJ/mol]", (dh_f - dh) / 1e3, ".6f"),
+        ("-(G-H298)/T residual [J/mol/K]", gfn_f - gfn, ".6f"),
     ]
     if u is not None:
         from pipeline.uncertainty import table_columns
 
         columns += [(head, values, ".6f") for head, values in table_columns(u, T).items()]
-    table_csv = render("table.csv.j2", header=[c[0] for c in columns], rows=_cells(columns))
+    values = np.empty((len(T), len(columns)))
+    for j, c in enumerate(columns):
+        values[:, j] = c[1]
+    table_csv = render("table.csv.j2", header=[c[0] for c in columns], values=values,
+                       formats=[c[2] for c in columns])
 
     # thermo.yaml entry
     uncertainty = None
@@ -165,16 +176,14 @@ def species_fragments(species, table, fit, settings) -> dict[str, str]:
         },
         quality=quality, uncertainty=uncertainty, sources=list(species.sources),
         species_file=PurePath(species.path).name if species.path else "", sha256=species.sha256,
-        version=__version__, model=s.model_key(), pressure_pa=float(s.pressure_pa),
+        version=__version__, model=_model_key(s), pressure_pa=float(pressure),
     )
 
     # REPORT.md row, errors of the printed polynomials over the fit grid
-    Tf = np.asarray(table.T, dtype=float)
-    inside = (Tf >= printed.tlow) & (Tf <= printed.thigh)
-    Tf = Tf[inside]
-    cp_err = np.abs(printed.cp(Tf) - table.cp[inside]) / np.abs(table.cp[inside])
-    h_err = np.abs(printed.h(Tf) - table.h[inside])
-    s_err = np.abs(printed.s(Tf) - table.s[inside])
+    cp_t, h_t, s_t = table.cp[inside], table.h[inside], table.s[inside]
+    cp_err = np.abs(cpf_grid - cp_t) / np.abs(cp_t)
+    h_err = np.abs(hf_grid - h_t)
+    s_err = np.abs(sf_grid - s_t)
     warnings = list(quality.get("warnings", []))
     note = ""
     if report_u is not None and exceeds(report_u, s.g_uncertainty_warning):
@@ -192,12 +201,68 @@ def species_fragments(species, table, fit, settings) -> dict[str, str]:
         dhf298=table.dhf298 / 1e3, s298=table.s298, cp298=table.cp298, tmid=printed.tmid,
         tmid_auto=bool(quality.get("tmid_auto", False)),
         cp_error=float(cp_err.max()) if len(Tf) else None, h_error=float(h_err.max()) if len(Tf) else None,
-        s_error=float(s_err.max()) if len(Tf) else None, continuity=max(printed.continuity().values()),
+        s_error=float(s_err.max()) if len(Tf) else None, continuity=v["continuity"],
         u_g298=report_u["g298"] if report_u else None, u_g1000=report_u["g1000"] if report_u else None,
         plot=plot, warnings="; ".join(w.replace("|", "/") for w in warnings),
     )
     return {"name": species.name, "record": record, "yaml": entry, "report_row": row,
             "report_note": note, "table_csv": table_csv}
+
+
+def _printed_values(p, temperatures) -> dict:
+    """Cp, H, S [SI] of the printed fit ``p`` on each array of ``temperatures``, H at
+    298.15 K, and the largest relative jump of Cp/R, H/RT, S/R at Tmid — in one pass.
+
+    The numbers are those of :class:`pipeline.nasa7.Nasa7Fit`'s ``cp``, ``h``, ``s``
+    and ``max(continuity().values())``, bit for bit: the same functions of
+    :mod:`pipeline.nasa7` evaluated once over every point, each point with
+    the coefficients of its own range (Tmid belongs to the low range).
+    """
+    from scipy import constants as C
+
+    from pipeline.nasa7 import cp_r, h_rt, s_r
+    from pipeline.thermo import T_REF
+
+    parts = [np.asarray(t, dtype=float) for t in temperatures]
+    sizes = [len(t) for t in parts]
+    T = np.concatenate(parts + [np.array([T_REF, p.tmid, p.tmid])])
+    high = T > p.tmid
+    high[-2:] = (False, True)  # Tmid in the low range, then in the high range
+    a = np.where(high[:, None], np.array(p.high, dtype=float), np.array(p.low, dtype=float)).T.copy()
+    dimensionless = {"cp": cp_r(a, T), "h": h_rt(a, T), "s": s_r(a, T)}
+    si = {"cp": C.R * dimensionless["cp"], "h": C.R * T * dimensionless["h"], "s": C.R * dimensionless["s"]}
+    out = {}
+    for q, values in si.items():
+        bounds = np.cumsum([0] + sizes)
+        out[q] = [values[i:j] for i, j in zip(bounds[:-1], bounds[1:])]
+    out["h298"] = float(si["h"][-3])
+    jumps = []
+    for values in dimensionless.values():  # Nasa7Fit.continuity()
+        lo, hi = float(values[-2]), float(values[-1])
+        jumps.append(abs(hi - lo) / max(abs(lo), 1.0))
+    out["continuity"] = max(jumps)
+    return out
+
+
+@functools.lru_cache(maxsize=64)
+def _table_grid(tmin: float, tmax: float, step: float) -> np.ndarray:
+    """:func:`pipeline.thermo.temperature_grid` of the tables (read-only, made once per range)."""
+    from pipeline.thermo import temperature_grid
+
+    grid = np.array(temperature_grid(tmin, tmax, step), dtype=float)
+    grid.flags.writeable = False
+    return grid
+
+
+_MODEL_KEYS: dict = {}
+
+
+def _model_key(settings) -> dict:
+    """``settings.model_key()``, computed once per distinct settings."""
+    key = _MODEL_KEYS.get(settings)
+    if key is None:
+        key = _MODEL_KEYS[settings] = settings.model_key()
+    return key
 
 
 def record_text(fit, identifier: str = "") -> str:
@@ -230,16 +295,18 @@ def _record(p, identifier: str) -> str:
 
 
 def _at_table_step(species, table, grid, pressure):
-    """The species' table on ``grid``: rows of the fit-grid ``table`` when it holds
-    every grid temperature (the usual case: 10 K grid, 100 K table step), else computed."""
+    """T, Cp, S, H−H298, −(G−H298)/T of the species on ``grid``: rows of the fit-grid
+    ``table`` when it holds every grid temperature (the usual case: 10 K grid, 100 K
+    table step), else computed."""
     from pipeline.thermo import thermo_table
 
     T = np.asarray(table.T, dtype=float)
     idx = np.searchsorted(T, grid)
     if table.pressure == pressure and np.all(idx < len(T)) and np.array_equal(T[np.minimum(idx, len(T) - 1)], grid):
-        rows = {f: getattr(table, f)[idx] for f in ("T", "cp", "s", "h_minus_h298", "g_fn", "h")}
-        return dataclasses.replace(table, **rows)
-    return thermo_table(species, grid, pressure)
+        src = table
+    else:
+        src, idx = thermo_table(species, grid, pressure), slice(None)
+    return tuple(np.asarray(getattr(src, f))[idx] for f in ("T", "cp", "s", "h_minus_h298", "g_fn"))
 
 
 def _uncertainty(species, T, pressure):
@@ -249,22 +316,6 @@ def _uncertainty(species, T, pressure):
     if not uncertain_inputs(species):
         return None
     return propagate(species, T, pressure)
-
-
-def _cells(columns) -> list[str]:
-    """CSV rows (joined cells) from (header, values, format) columns."""
-    from pipeline.writers.formats import csv_number
-
-    line = ",".join("%" + fmt for _, _, fmt in columns)
-    data = [(np.asarray(c[1], dtype=float) + 0.0).tolist() for c in columns]  # + 0.0: no negative zero
-    rows = []
-    for values in zip(*data):
-        text = line % values
-        padded = f",{text},"
-        if ",-0.000000," in padded or ",-0.00," in padded:  # a tiny negative printed as −0
-            text = ",".join(csv_number(v, c[2]) for v, c in zip(values, columns))
-        rows.append(text)
-    return rows
 
 
 def _check_record(name: str, record: str) -> None:

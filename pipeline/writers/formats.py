@@ -11,7 +11,10 @@ from __future__ import annotations
 import functools
 import json
 import math
+import re
 from pathlib import Path
+
+import numpy as np
 
 TEMPLATES = Path(__file__).resolve().parent.parent / "templates"
 
@@ -163,6 +166,119 @@ def csv_number(x: float, fmt: str = ".6f") -> str:
     return text
 
 
+def csv_rows(values, formats) -> str:
+    """The rows of a CSV table: ``values[i, j]`` printed with ``formats[j]``, cells
+    joined by commas, every row ending in a newline; exactly as :func:`csv_number`
+    prints each cell (no negative zero), made for the whole table at once.
+
+    Fixed-point formats ``".Nf"`` (N = 1 … 6) of values below 1e8 in magnitude
+    are made with array operations (:func:`_fixed_point_rows`); anything else
+    with one ``%`` operation for the whole table.
+
+    >>> print(csv_rows(np.array([[298.15, -1.0e-8, 0.0078125], [300.0, 1234.5678915, -2.5]]),
+    ...                [".2f", ".6f", ".6f"]), end="")
+    298.15,0.000000,0.007812
+    300.00,1234.567892,-2.500000
+    """
+    X = np.asarray(values, dtype=float)
+    formats = tuple(formats)
+    if X.ndim != 2 or X.shape[1] != len(formats) or not all(_fixed_point(f) for f in formats):
+        return "".join(",".join(csv_number(v, f) for v, f in zip(row, formats)) + "\n" for row in X)
+    if X.size:
+        ax = np.abs(X)
+        decimals = tuple(int(f[1]) for f in formats)
+        if min(decimals) >= 1 and max(decimals) <= 6 and np.all((ax < 1e8) & ((ax > 1e-280) | (X == 0.0))):
+            return _fixed_point_rows(X, decimals)
+    text = _rows_format(formats, X.shape[0]) % tuple((X + 0.0).ravel().tolist())
+    if "-0." in text:  # perhaps a tiny negative printed as −0
+        text = _NEGATIVE_ZERO.sub(r"\1", text)
+    return text
+
+
+#: a whole cell that prints zero with a minus sign (the sign is dropped, as csv_number does)
+_NEGATIVE_ZERO = re.compile(r"(?<![^,\n])-(0\.0+)(?![^,\n])")
+
+
+def _fixed_point(fmt: str) -> bool:
+    return len(fmt) == 3 and fmt[0] == "." and fmt[1].isdigit() and fmt[2] == "f"
+
+
+@functools.lru_cache(maxsize=64)
+def _rows_format(formats: tuple, rows: int) -> str:
+    """One ``%`` format string for a whole table of ``rows`` rows."""
+    return ("%" + ",%".join(formats) + "\n") * rows
+
+
+_POW10 = np.array([1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6])  # exact doubles
+#: word numbers in :func:`_words`: "000" … "999", then "0" … "999", then "", then "-"
+_UNPADDED, _EMPTY, _MINUS = 1000, 2000, 2001
+
+
+@functools.lru_cache(maxsize=16)
+def _words(decimals: tuple):
+    """The 4-byte words :func:`_fixed_point_rows` spells cells with (NUL-padded), and
+    per column the first word of its ".ddd" block and of its "ddd," block."""
+    words = [f"{i:03d}" for i in range(1000)] + [str(i) for i in range(1000)] + ["", "-"]
+    first: dict = {}
+    point, tail = [], []
+    for j, d in enumerate(decimals):
+        sep = "\n" if j == len(decimals) - 1 else ","
+        for key, spell in ((("point", d), lambda i: f".{i:03d}"[:1 + min(d, 3)]),
+                           (("tail", d, sep), lambda i: f"{i:03d}"[:max(d - 3, 0)] + sep)):
+            if key not in first:
+                first[key] = len(words)
+                words += [spell(i) for i in range(1000)]
+        point.append(first[("point", d)])
+        tail.append(first[("tail", d, sep)])
+    lut = np.frombuffer("".join(w.ljust(4, "\0") for w in words).encode("ascii"), dtype=np.uint32)
+    return lut, np.array(point, dtype=float), np.array(tail, dtype=float)
+
+
+def _fixed_point_rows(X, decimals: tuple) -> str:
+    """:func:`csv_rows` of ``X`` (|X| < 1e8, finite) with ``decimals[j]`` (1 … 6) decimals
+    in column j, by array operations.
+
+    Each cell is rounded to the integer round(x·10^N) exactly — the product is
+    split into its double and its rounding error (Dekker 1971), so the
+    rounding is that of the binary value, ties to even, as ``"%.Nf"`` does —
+    and spelt in words of up to four characters looked up by the digit groups
+    of that integer.  Every step is exact: the integers stay below 1e15 < 2**53.
+
+    Reference: T. J. Dekker, "A floating-point technique for extending the
+    available precision", Numer. Math. 18, 224–242 (1971).
+    """
+    dec = np.array(decimals)
+    scale = _POW10[dec]
+    p = X * scale
+    c = 134217729.0 * X  # Dekker's split: X = xh + xl, 26 bits each; xh·scale, xl·scale exact
+    xh = c - (c - X)
+    err = (xh * scale - p) + (X - xh) * scale  # X·scale = p + err exactly
+    n = np.rint(p)  # nearest integer to p, ties to even
+    r = p - n  # exact
+    n += (r == 0.5) & (err > 0.0)  # a tie of p broken by the rounding error of the product
+    n -= (r == -0.5) & (err < 0.0)
+    neg = n < 0.0  # a cell printing as zero has n = 0: no sign
+    a = np.abs(n)
+    ip = np.floor(a / scale)  # integer part, and the decimals as a six-digit integer
+    fp = (a - ip * scale) * _POW10[6 - dec]
+    g2 = np.floor(ip / 1e6)
+    rest = ip - g2 * 1e6
+    g1 = np.floor(rest / 1e3)
+    g0 = rest - g1 * 1e3
+    f1 = np.floor(fp / 1e3)
+    lut, point, tail = _words(decimals)
+    big, mid = g2 > 0.0, g1 > 0.0
+    words = np.stack([
+        np.where(neg, _MINUS, _EMPTY),
+        np.where(big, _UNPADDED + g2, _EMPTY),
+        np.where(big, g1, np.where(mid, _UNPADDED + g1, _EMPTY)),
+        np.where(big | mid, g0, _UNPADDED + g0),
+        point + f1,
+        tail + (fp - f1 * 1e3),
+    ], axis=-1).astype(np.intp)
+    return lut.take(words).tobytes().translate(None, b"\0").decode("ascii")
+
+
 def md_number(x: float, fmt: str = ".3f") -> str:
     """A number for a Markdown table cell (``—`` for None or NaN).
 
@@ -176,7 +292,7 @@ def md_number(x: float, fmt: str = ".3f") -> str:
 
 FILTERS = {
     "e15": e15, "f10": f10, "f8": f8, "element": element_field, "yaml": yaml_value,
-    "yaml_key": yaml_key, "yaml_block": yaml_block, "csv": csv_number, "md": md_number,
+    "yaml_key": yaml_key, "yaml_block": yaml_block, "csv": csv_number, "csv_rows": csv_rows, "md": md_number,
 }
 
 

@@ -71,13 +71,14 @@ def round_sig(x: float) -> float:
     -0.0010208999
     """
     x = float(x)
-    if not math.isfinite(x):
-        raise ValueError(f"cannot print {x!r} as a coefficient")
-    if abs(x) < 1e-99:
+    ax = abs(x)
+    if ax < 1e-99:
         return 0.0
-    if abs(x) >= 1e100:
+    if not ax < 1e100:  # also inf and nan
+        if not math.isfinite(x):
+            raise ValueError(f"cannot print {x!r} as a coefficient")
         raise ValueError(f"{x!r} does not fit an E15.8 field")
-    return float(f"{x:.{SIGNIFICANT - 1}E}") + 0.0
+    return float(f"{x:.8E}") + 0.0  # SIGNIFICANT = 9 digits
 
 
 def round_temperature(t: float) -> float:
@@ -121,7 +122,8 @@ def _poly(T: float) -> dict:
 
 
 def _dot(u, w) -> float:
-    return sum(p * q for p, q in zip(u, w))
+    """u·w over a1 … a5, summed left to right from 0.0 (the same float on every Python)."""
+    return 0.0 + u[0] * w[0] + u[1] * w[1] + u[2] * w[2] + u[3] * w[3] + u[4] * w[4]
 
 
 def _close(a5, T: float, targets: dict) -> tuple:
@@ -139,12 +141,15 @@ def _close(a5, T: float, targets: dict) -> tuple:
 def _value(q: str, a, T: float) -> float:
     """Cp/R, H/RT or S/R of the seven coefficients ``a`` at T, in double precision
     (the same numbers as :mod:`pipeline.nasa7` up to summation order, ~1e-16)."""
-    v = _dot(_poly_list(T)[q], a[:5])
+    v = _dot(_poly_list(T)[q], a)
     return v + a[5] / T if q == "h" else v + a[6] if q == "s" else v
 
 
 def _meets(a: tuple, T: float, targets: dict) -> bool:
-    return all(abs(_value(q, a, T) - t) <= MARGIN * _BAR[q] * max(abs(t), 1.0) for q, t in targets.items())
+    for q, t in targets.items():
+        if not abs(_value(q, a, T) - t) <= MARGIN * _BAR[q] * max(abs(t), 1.0):
+            return False
+    return True
 
 
 def _round_sig_array(x: np.ndarray) -> np.ndarray:
@@ -241,20 +246,27 @@ def _nudged(base: list[float], T: float, targets: dict, span: tuple[float, float
     return None
 
 
-def _state(a5: list[float], T: float, targets: dict, v: dict, refix: bool):
-    """Printed a1 … a7 (a1 re-fixed for Cp if ``refix``), exact a6, a7, and the
-    signed errors of the targets in units of their tolerance windows."""
+def _windows(targets: dict) -> dict:
+    """The tolerance window of each target (what :func:`_meets` allows)."""
+    return {q: MARGIN * _BAR[q] * max(abs(t), 1.0) for q, t in targets.items()}
+
+
+def _state(a5: list[float], T: float, targets: dict, v: dict, refix: bool, windows: dict):
+    """Printed a1 … a7 (a1 re-fixed for Cp if ``refix``), exact a6, a7, and whether
+    every target is met within its tolerance window (``windows``)."""
     a5 = list(a5)
     if refix:
         a5[0] = round_sig(a5[0] + targets["cp"] - _dot(v["cp"], a5))
-    x6 = (targets["h"] - _dot(v["h"], a5)) * T
-    x7 = targets["s"] - _dot(v["s"], a5)
-    a = (*a5, round_sig(x6), round_sig(x7))
-    err = {}
-    for q, t in targets.items():
-        value = _dot(v[q], a5) + (a[5] / T if q == "h" else a[6] if q == "s" else 0.0)
-        err[q] = (value - t) / (MARGIN * _BAR[q] * max(abs(t), 1.0))
-    return a, x6, x7, err
+    dh = _dot(v["h"], a5)
+    ds = _dot(v["s"], a5)
+    x6 = (targets["h"] - dh) * T
+    x7 = targets["s"] - ds
+    a6, a7 = round_sig(x6), round_sig(x7)
+    a = (*a5, a6, a7)
+    ok = abs(dh + a6 / T - targets["h"]) / windows["h"] <= 1.0 and abs(ds + a7 - targets["s"]) / windows["s"] <= 1.0
+    if ok and "cp" in targets:
+        ok = abs(_dot(v["cp"], a5) + 0.0 - targets["cp"]) / windows["cp"] <= 1.0
+    return a, x6, x7, ok
 
 
 def _aimed(base: list[float], T: float, targets: dict, span) -> tuple | None:
@@ -278,7 +290,8 @@ def _aimed(base: list[float], T: float, targets: dict, span) -> tuple | None:
     knobs = [j for j in range(5) if steps[j]]
     if not knobs:
         return None
-    a, x6, x7, _ = _state(base, T, targets, v, cp_fixed)
+    windows = _windows(targets)
+    a, x6, x7, _ = _state(base, T, targets, v, cp_fixed, windows)
     g6, g7 = last_digit(a[5]) or 1.0, last_digit(a[6]) or 1.0
 
     def effect(q, j, follow):  # change of the exact a6 (q='h') or a7 per unit of a_j
@@ -290,34 +303,40 @@ def _aimed(base: list[float], T: float, targets: dict, span) -> tuple | None:
         out[j] = round_sig(a5[j] + k * steps[j])
         return out
 
-    fine = sorted(knobs, key=lambda j: abs(effect("h", j, False)) + abs(effect("s", j, False)))
-    primaries = []
-    for off in (0, 1, -1, 2, -2):
-        for q, x, g in (("h", x6, g6), ("s", x7, g7)):
-            want = (round(x / g) + off) * g - x
-            for j in knobs:
-                e = effect(q, j, cp_fixed)
-                if e:
-                    k = round(want / e)
-                    if k and abs(k) * reach[j] <= limit:
-                        primaries.append((abs(off), abs(k) * reach[j], j, k))
-    primaries.sort()
-    for _, _, j, k in primaries[:24]:
-        trial = moved(base, j, k)
-        a, x6t, x7t, err = _state(trial, T, targets, v, cp_fixed)
-        if all(abs(e) <= 1.0 for e in err.values()):
-            return a if _meets(a, T, targets) else None
-        held = list(a[:5])  # a1 as re-fixed; correct the small miss with a1 held
-        for j2 in fine:
-            for q, x, g in (("h", x6t, g6), ("s", x7t, g7)):
-                e2 = effect(q, j2, False)
-                if not e2:
-                    continue
+    primary = {q: [(j, effect(q, j, cp_fixed)) for j in knobs] for q in ("h", "s")}
+    held = {q: {j: effect(q, j, False) for j in knobs} for q in ("h", "s")}
+    fine = sorted(knobs, key=lambda j: abs(held["h"][j]) + abs(held["s"][j]))
+    fine_effects = [(j2, q, held[q][j2]) for j2 in fine for q in ("h", "s") if held[q][j2]]
+    grid = (("h", x6, g6, round(x6 / g6)), ("s", x7, g7, round(x7 / g7)))
+    tried = 0
+    for offs in ((0,), (1, -1), (2, -2)):  # candidates by grid distance, then by Cp/R change
+        group = []
+        for off in offs:
+            for q, x, g, m in grid:
+                want = (m + off) * g - x
+                for j, e in primary[q]:
+                    if e:
+                        k = round(want / e)
+                        if k and abs(k) * reach[j] <= limit:
+                            group.append((abs(k) * reach[j], j, k))
+        group.sort()
+        for _, j, k in group:
+            if tried == 24:
+                return None
+            tried += 1
+            trial = moved(base, j, k)
+            a, x6t, x7t, ok = _state(trial, T, targets, v, cp_fixed, windows)
+            if ok:
+                return a if _meets(a, T, targets) else None
+            a5 = list(a[:5])  # a1 as re-fixed; correct the small miss with a1 held
+            sides = {"h": (x6t, g6), "s": (x7t, g7)}
+            for j2, q, e2 in fine_effects:
+                x, g = sides[q]
                 k2 = round((round(x / g) * g - x) / e2)
                 if not k2 or abs(k2) * reach[j2] > limit:
                     continue
-                a2, _, _, err2 = _state(moved(held, j2, k2), T, targets, v, False)
-                if all(abs(e) <= 1.0 for e in err2.values()) and _meets(a2, T, targets):
+                a2, _, _, ok2 = _state(moved(a5, j2, k2), T, targets, v, False, windows)
+                if ok2 and _meets(a2, T, targets):
                     return a2
     return None
 
