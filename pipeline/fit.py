@@ -153,13 +153,18 @@ class FitQuality:
 
     def as_dict(self) -> dict:
         """Plain floats, strings, bools and lists (for YAML/JSON writers)."""
-        d = dataclasses.asdict(self)
+        d = {f.name: getattr(self, f.name) for f in dataclasses.fields(self)}  # not asdict: no deep copies
+        for key, value in d.items():
+            if isinstance(value, PropertyError):
+                d[key] = {f.name: getattr(value, f.name) for f in dataclasses.fields(value)}
         d["warnings"] = list(self.warnings)
         d["limit_ratio"] = float(self.limit_ratio)
         return _plain(d)
 
 
 def _plain(v):
+    if type(v) in _PLAIN or v is None:
+        return v
     if isinstance(v, dict):
         return {k: _plain(x) for k, x in v.items()}
     if isinstance(v, (list, tuple)):
@@ -171,6 +176,9 @@ def _plain(v):
     if isinstance(v, (float, np.floating)):
         return float(v)
     return v
+
+
+_PLAIN = frozenset((float, int, bool, str))
 
 
 # --------------------------------------------------------------------------
