@@ -64,6 +64,7 @@ B. J. McBride, S. Gordon and M. A. Reno, NASA TM-4513 (1993) (the polynomial for
 from __future__ import annotations
 
 import dataclasses
+import functools
 import math
 from dataclasses import dataclass
 
@@ -83,8 +84,8 @@ TMID_FINE_STEP = 10.0
 #: (the final fit is checked, and if need be continued, on the full grid)
 SEARCH_SPACING, FINAL_SPACING = 80.0, 20.0
 #: Lawson stopping rule: max error ≤ (1 + tol) × certified lower bound, or the iteration cap
-FINAL_TOL, FINAL_ITERATIONS = 0.03, 60
-SEARCH_TOL, COARSE_ITERATIONS, FINE_ITERATIONS = 0.03, 4, 6
+FINAL_TOL, FINAL_ITERATIONS = 0.05, 60
+SEARCH_TOL, COARSE_ITERATIONS, FINE_ITERATIONS = 0.03, 3, 4
 #: margin above the classical high-temperature Cp limit before warning (the fit's own error)
 CLASSICAL_MARGIN = 0.01
 #: a design-matrix condition number above this is reported as a warning
@@ -268,6 +269,12 @@ class _Basis:
         return np.hstack([self.C, self.mask([tmid])[0][:, None] * (self.C @ q.T)])
 
 
+@functools.lru_cache(maxsize=8)
+def _basis(grid: bytes, tlow: float, thigh: float) -> _Basis:
+    """The :class:`_Basis` of a grid (float64 bytes) and range, built once per process."""
+    return _Basis(np.frombuffer(grid, dtype=float), tlow, thigh)
+
+
 def _mm(a, b):
     """a @ b for 2-D arrays with every output row computed the same way whatever the
     number of rows: a species' result must not depend on which other species share the
@@ -300,12 +307,12 @@ def _unpack(F):
     return out
 
 
-def _normal(P, Cb, v, inv, mask, Mq, d, mm=None):
-    """Weighted normal equations G δ = rhs (R, p, p), (R, p) with w_i = v_i y_i.
+def _normal(P, Cb, a, mask, Mq, d, mm=None):
+    """Weighted normal equations G δ = rhs (R, p, p), (R, p) with a_i = w_i / y_i².
 
     Minimising Σ_i w_i r_i², r_i = (B(θ + δ))_i / y_i − 1, for the correction δ
     to parameters θ whose residual is d = y − Bθ gives
-    G = Σ_i (v_i / y_i) b_i b_iᵀ and rhs = Σ_i (v_i / y_i) d_i b_i, with
+    G = Σ_i a_i b_i b_iᵀ and rhs = Σ_i a_i d_i b_i, with
     b_i = [c_i, m_i Mq c_i]; ``P`` holds the products c_i c_iᵀ (15 columns, maybe
     zero-padded), ``Cb`` the c_i.  Solving for the correction from the true
     residual is one step of iterative refinement in every Lawson iteration:
@@ -314,20 +321,27 @@ def _normal(P, Cb, v, inv, mask, Mq, d, mm=None):
     1996, §2.9).
     """
     mm = mm or _mm
-    a = v * inv
-    ad = a * d
-    F = _unpack(mm(a, P)[:, :15])
-    Fm = _unpack(mm(a * mask, P)[:, :15])
-    g = mm(ad, Cb)[:, :5]
-    gm = mm(ad * mask, Cb)[:, :5]
+    R = a.shape[0]
+    buf = np.empty((2 * R, a.shape[1]))
+    np.multiply(a, mask, out=buf[R:])
+    buf[:R] = a
+    FF = mm(buf, P)
+    np.multiply(a, d, out=buf[:R])
+    np.multiply(buf[:R], mask, out=buf[R:])
+    gg = mm(buf, Cb)
+    F, Fm = _unpack(FF[:R, :15]), _unpack(FF[R:, :15])
+    g, gm = gg[:R, :5], gg[R:, :5]
     FmMt = Fm @ Mq.transpose(0, 2, 1)
     nq = Mq.shape[1]
-    G = np.empty((v.shape[0], 5 + nq, 5 + nq))
+    G = np.empty((R, 5 + nq, 5 + nq))
     G[:, :5, :5] = F
     G[:, :5, 5:] = FmMt
     G[:, 5:, :5] = FmMt.transpose(0, 2, 1)
     G[:, 5:, 5:] = Mq @ FmMt
-    rhs = np.concatenate([g, np.einsum("rkj,rj->rk", Mq, gm)], axis=1)
+    rhs = np.empty((R, 5 + nq))
+    rhs[:, :5] = g
+    for k in range(nq):
+        rhs[:, 5 + k] = (Mq[:, k] * gm).sum(axis=1)
     return G, rhs
 
 
@@ -337,7 +351,7 @@ class _Lawson:
     beta: np.ndarray  # (R, 5) high-range minus low-range Chebyshev coefficients
     error: np.ndarray  # (R,) max relative Cp error of (alpha, beta)
     bound: np.ndarray  # (R,) certified lower bound on the minimax error
-    weights: np.ndarray  # (R, n) final v = w / y
+    weights: np.ndarray  # (R, n) final Lawson weights w (Σ w = 1)
     iterations: np.ndarray  # (R,)
 
 
@@ -401,22 +415,23 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None):
         ys[:, :n] = y[row]
         inv = np.zeros((slots, npad))
         inv[:, :n] = 1.0 / ys[:, :n]
+        inv2 = inv * inv
         mask = np.zeros((slots, npad))
         mask[:, :n] = mask_all[row]
         Mq = Mq_all[row]
-        v = np.zeros((slots, npad))
+        w = np.zeros((slots, npad))  # Lawson weights, Σ w = 1
         if v0 is None:
-            v[:, :n] = inv[:, :n] / n
+            w[:, :n] = 1.0 / n
         else:
             w0 = np.ascontiguousarray(v0[row], dtype=float)
-            v[:, :n] = w0 / (w0 * y[row]).sum(axis=1, keepdims=True)
+            w[:, :n] = w0 / w0.sum(axis=1, keepdims=True)
         dres = ys.copy()
         theta = np.zeros((slots, 5 + nq))
         it = 0
         best = np.full(slots, np.inf)
         bnd = np.zeros(slots)
         while alive.any():
-            G, rhs = _normal(P, Cb, v, inv, mask, Mq, dres, mm=_tiled)
+            G, rhs = _normal(P, Cb, w * inv2, mask, Mq, dres, mm=_tiled)
             # a ridge at round-off level keeps degenerate rows (exact fits, zero weights) solvable
             diag = G.reshape(G.shape[0], -1)[:, :: G.shape[1] + 1]  # a view of the diagonals
             diag += 1e-300 + 1e-15 * diag.sum(axis=1, keepdims=True)
@@ -426,11 +441,13 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None):
             for k in range(1, nq):
                 beta = beta + theta[:, 5 + k : 6 + k] * Mq[:, k]
             fitted = _tiled(np.concatenate([alpha, beta]), CT)
-            dres = ys - (fitted[:slots] + mask * fitted[slots:])
-            e = np.abs(dres)
-            ar = e * inv
+            dres = np.multiply(mask, fitted[slots:])
+            dres += fitted[:slots]
+            np.subtract(ys, dres, out=dres)
+            ar = np.multiply(dres, inv)
+            np.abs(ar, out=ar)  # |r_i|, the relative error
             err = ar.max(axis=1)
-            wa = v * e
+            wa = w * ar
             den = wa.sum(axis=1)
             safe = np.where(den > 0, den, 1.0)
             bound = (wa * ar).sum(axis=1) / safe
@@ -439,10 +456,11 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None):
             best = np.where(better, err, best)
             bnd = np.maximum(bnd, bound)
             if LAWSON_POWER == 1.0:
-                v = v * ar / safe[:, None]  # Lawson: w ← w |r| / Σ w|r|, with v = w / y
+                w = wa / safe[:, None]  # Lawson: w ← w |r| / Σ w|r|
             else:
-                v = v * ar * np.sqrt(ar)
-                v /= np.maximum((v * ys).sum(axis=1, keepdims=True), 1e-300)
+                np.sqrt(ar, out=ar)
+                w = np.multiply(wa, ar, out=wa)
+                w /= np.maximum(w.sum(axis=1, keepdims=True), 1e-300)
             ab = alive & better
             res.error[row[ab]] = err[ab]
             res.alpha[row[ab]] = alpha[ab]
@@ -453,7 +471,7 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None):
             if rf.size:
                 res.bound[row[rf]] = bnd[rf]
                 res.iterations[row[rf]] = it
-                res.weights[row[rf]] = v[rf, :n]
+                res.weights[row[rf]] = w[rf, :n]
                 alive &= ~finished
                 live = np.flatnonzero(alive)
                 need = -(-live.size // TILE) * TILE
@@ -461,7 +479,8 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None):
                     keep = np.r_[live, np.full(need - live.size, live[0])]
                     slots = need
                     row, alive = row[keep], np.arange(slots) < live.size
-                    ys, inv, mask, Mq, v, dres = (np.ascontiguousarray(a[keep]) for a in (ys, inv, mask, Mq, v, dres))
+                    ys, inv, inv2, mask, Mq, w, dres = (np.ascontiguousarray(a[keep])
+                                                         for a in (ys, inv, inv2, mask, Mq, w, dres))
                     theta, best, bnd = theta[keep], best[keep], bnd[keep]
     # the bound is exact in exact arithmetic; at round-off level (exact fits) it may exceed the error
     res.bound = np.minimum(res.bound, res.error)
@@ -510,12 +529,10 @@ def _property_error(fit, ref, T, relative_floor):
             for a, b, c, e in zip(rel[k, ir], T[ir], d[k, ia], T[ia])]
 
 
-def _evaluate(low, high, tmid, T, which=("cp_r", "h_rt", "s_r")):
-    """Properties of coefficient stacks (S, 7) on T (n,), ranges split at tmid (S,)."""
-    lo = low.T[:, :, None]
-    hi = high.T[:, :, None]
+def _range_coefficients(low, high, tmid, T):
+    """(7, S, n): the coefficients that apply at each T (n,) — low up to tmid (S,), high above."""
     use_low = T[None, :] <= np.asarray(tmid)[:, None]
-    return tuple(np.where(use_low, getattr(nasa7, f)(lo, T), getattr(nasa7, f)(hi, T)) for f in which)
+    return np.where(use_low[None], low.T[:, :, None], high.T[:, :, None])
 
 
 # --------------------------------------------------------------------------
@@ -544,13 +561,19 @@ def tmid_candidates(tlow: float, thigh: float, T=None) -> np.ndarray:
 
 def _admissible(c, tlow, thigh, T=None):
     c = np.asarray(c, dtype=float)
-    c = c[(c > tlow) & (c < thigh)]
+    return c[_admissible_mask(c, tlow, thigh, T)]
+
+
+def _admissible_mask(c, tlow, thigh, T=None):
+    """True for the Tmid candidates ``c`` strictly inside (tlow, thigh) with three grid points of T each side."""
+    c = np.asarray(c, dtype=float)
+    ok = (c > tlow) & (c < thigh)
     if T is not None and c.size:
         T = np.asarray(T)
         below = np.searchsorted(T, c, side="left")
         above = T.size - np.searchsorted(T, c, side="right")
-        c = c[(below >= 3) & (above >= 3)]
-    return c
+        ok &= (below >= 3) & (above >= 3)
+    return ok
 
 
 #: Tmid preferred among candidates whose errors tie (e.g. atoms whose Cp is exactly 5/2 R)
@@ -632,7 +655,7 @@ def fit_tables(tables, options) -> list[Nasa7Fit]:
         bad = [tables[i].name for i, yy in zip(rows, y) if not (np.all(np.isfinite(yy)) and yy.min() > 0)]
         if bad:
             raise ValueError(f"{', '.join(bad)}: the table's Cp is not positive and finite everywhere")
-        fits = _fit_group(_Basis(T, tlow, thigh), y, [tables[i] for i in rows], [opts[i] for i in rows],
+        fits = _fit_group(_basis(tb, tlow, thigh), y, [tables[i] for i in rows], [opts[i] for i in rows],
                           [keeps[i] for i in rows], sd)
         for i, f in zip(rows, fits):
             out[i] = f
@@ -667,15 +690,12 @@ def _fit_group(basis, y, tables, opts, keeps, sd):
         owner = np.repeat(sa, coarse.size)
         state.run(bsub, ysub, owner, np.tile(coarse, sa.size), sd, COARSE_ITERATIONS, warm=False)
         for offsets in ((-40.0, -20.0, 20.0, 40.0), (-10.0, 10.0)):
-            owner_l, cand_l = [], []
-            for k in sa:
-                c = _admissible(state.tmid[k] + np.array(offsets), tlow, thigh, bsub.T)
-                c = c[(c >= TMID_SEARCH[0]) & (c <= TMID_SEARCH[1])]
-                owner_l.append(np.full(c.size, k))
-                cand_l.append(c)
-            owner = np.concatenate(owner_l).astype(int)
-            if owner.size:
-                state.run(bsub, ysub, owner, np.concatenate(cand_l), sd, FINE_ITERATIONS, warm=True)
+            cand = (state.tmid[sa][:, None] + np.array(offsets)[None, :]).ravel()
+            owner = np.repeat(sa, len(offsets))
+            ok = (_admissible_mask(cand, tlow, thigh, bsub.T)
+                  & (cand >= TMID_SEARCH[0]) & (cand <= TMID_SEARCH[1]))
+            if ok.any():
+                state.run(bsub, ysub, owner[ok], cand[ok], sd, FINE_ITERATIONS, warm=True)
     sf = np.flatnonzero(~auto)
     if sf.size:  # a warm-up for the fixed Tmid on the subset
         state.run(bsub, ysub, sf, fixed[sf], sd, FINE_ITERATIONS, warm=False)
@@ -742,7 +762,8 @@ def _results(basis, y, tables, opts, keeps, sd, tmid, auto, res):
     dhf = np.array([t.dhf298 for t in tables])
     s298 = np.array([t.s298 for t in tables])
     low, high = _coefficients(basis, res.alpha, res.beta, tmid, dhf, s298)
-    cp_f, h_f, s_f = _evaluate(low, high, tmid, T)
+    a = _range_coefficients(low, high, tmid, T)
+    cp_f, h_f, s_f = nasa7.cp_r(a, T), nasa7.h_rt(a, T), nasa7.s_r(a, T)
     h_t = np.stack([np.asarray(t.h, dtype=float)[k] for t, k in zip(tables, keeps)]) / (C.R * T)
     s_t = np.stack([np.asarray(t.s, dtype=float)[k] for t, k in zip(tables, keeps)]) / C.R
     errs = {
@@ -752,12 +773,13 @@ def _results(basis, y, tables, opts, keeps, sd, tmid, auto, res):
         "g_rt": _property_error(h_f - s_f, h_t - s_t, T, True),
     }
     # conditioning: the 1/Cp-scaled design matrix (unit weights), and evaluation of the monomials
-    G0, _ = _normal(basis.P, basis.C, np.ones_like(y), 1.0 / y, basis.mask(tmid), basis.qmap(tmid, sd), y)
+    G0, _ = _normal(basis.P, basis.C, 1.0 / y, basis.mask(tmid), basis.qmap(tmid, sd), y)
     ev = np.linalg.eigvalsh(G0)
     cond = np.sqrt(ev[:, -1] / np.maximum(ev[:, 0], 1e-300 * ev[:, -1]))
     Tp = T[None, :] ** np.arange(5)[:, None]  # (5, n)
-    use_low = T[None, :] <= tmid[:, None]
-    terms = np.where(use_low, _mm(np.abs(low[:, :5]), Tp), _mm(np.abs(high[:, :5]), Tp))
+    terms = np.abs(a[0]) * Tp[0]
+    for k in range(1, 5):
+        terms += np.abs(a[k]) * Tp[k]
     ev_cond = (terms / np.maximum(np.abs(cp_f), 1e-300)).max(axis=1)
     # the jumps of Nasa7Fit.continuity(), for all species at once
     jumps = {}
