@@ -84,7 +84,7 @@ TMID_FINE_STEP = 10.0
 #: (the final fit is checked, and if need be continued, on the full grid)
 SEARCH_SPACING, FINAL_SPACING = 80.0, 20.0
 #: Lawson stopping rule: max error ≤ (1 + tol) × certified lower bound, or the iteration cap
-FINAL_TOL, FINAL_ITERATIONS = 0.05, 60
+FINAL_TOL, FINAL_ITERATIONS = 0.05, 40
 SEARCH_TOL, COARSE_ITERATIONS, FINE_ITERATIONS = 0.03, 3, 4
 #: margin above the classical high-temperature Cp limit before warning (the fit's own error)
 CLASSICAL_MARGIN = 0.01
@@ -359,7 +359,7 @@ class _Lawson:
 #: 1.5× faster here, and the stopping rule's certificate holds for any weights)
 LAWSON_POWER = 1.5
 #: rows per group of the Lawson iteration: about this many grid values, so the work stays in cache
-BLOCK_ELEMENTS = 32768
+BLOCK_ELEMENTS = 65536
 #: rows per matrix product: every product is a stack of products of this one shape
 TILE = 16
 
