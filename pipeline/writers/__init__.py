@@ -231,10 +231,10 @@ def _printed_values(p, temperatures) -> dict:
     a = np.where(high[:, None], np.array(p.high, dtype=float), np.array(p.low, dtype=float)).T.copy()
     dimensionless = {"cp": cp_r(a, T), "h": h_rt(a, T), "s": s_r(a, T)}
     si = {"cp": C.R * dimensionless["cp"], "h": C.R * T * dimensionless["h"], "s": C.R * dimensionless["s"]}
-    out = {}
-    for q, values in si.items():
-        bounds = np.cumsum([0] + sizes)
-        out[q] = [values[i:j] for i, j in zip(bounds[:-1], bounds[1:])]
+    bounds = [0]
+    for n in sizes:
+        bounds.append(bounds[-1] + n)
+    out = {q: [values[i:j] for i, j in zip(bounds[:-1], bounds[1:])] for q, values in si.items()}
     out["h298"] = float(si["h"][-3])
     jumps = []
     for values in dimensionless.values():  # Nasa7Fit.continuity()

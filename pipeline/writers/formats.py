@@ -93,7 +93,8 @@ def yaml_value(value) -> str:
     if kind is list or kind is tuple:
         return "[" + ", ".join(_yaml_float(v) if type(v) is float else yaml_value(v) for v in value) + "]"
     if kind is dict:
-        return "{" + ", ".join(f"{yaml_key(k)}: {yaml_value(v)}" for k, v in value.items()) + "}"
+        return "{" + ", ".join(f"{yaml_key(k)}: {_yaml_float(v) if type(v) is float else yaml_value(v)}"
+                               for k, v in value.items()) + "}"
     if kind is str:
         return _yaml_string(value)
     if value is None:
@@ -139,7 +140,8 @@ def yaml_block(mapping: dict, indent: int = 0) -> str:
         cp_r: {max_rel: 0.001}
     """
     pad = " " * indent
-    return "\n".join(f"{pad}{yaml_key(k)}: {yaml_value(v)}" for k, v in mapping.items())
+    return "\n".join(f"{pad}{yaml_key(k)}: {_yaml_float(v) if type(v) is float else yaml_value(v)}"
+                     for k, v in mapping.items())
 
 
 @functools.lru_cache(maxsize=4096)
@@ -250,13 +252,14 @@ def _fixed_point_rows(X, decimals: tuple) -> str:
     dec = np.array(decimals)
     scale = _POW10[dec]
     p = X * scale
-    c = 134217729.0 * X  # Dekker's split: X = xh + xl, 26 bits each; xh·scale, xl·scale exact
-    xh = c - (c - X)
-    err = (xh * scale - p) + (X - xh) * scale  # X·scale = p + err exactly
     n = np.rint(p)  # nearest integer to p, ties to even
     r = p - n  # exact
-    n += (r == 0.5) & (err > 0.0)  # a tie of p broken by the rounding error of the product
-    n -= (r == -0.5) & (err < 0.0)
+    if np.any(np.abs(r) == 0.5):  # p halfway: the rounding error of the product decides
+        c = 134217729.0 * X  # Dekker's split: X = xh + xl, 26 bits each; xh·scale, xl·scale exact
+        xh = c - (c - X)
+        err = (xh * scale - p) + (X - xh) * scale  # X·scale = p + err exactly
+        n += (r == 0.5) & (err > 0.0)
+        n -= (r == -0.5) & (err < 0.0)
     neg = n < 0.0  # a cell printing as zero has n = 0: no sign
     a = np.abs(n)
     ip = np.floor(a / scale)  # integer part, and the decimals as a six-digit integer
