@@ -299,12 +299,15 @@ def _mm(a, b):
     return out[:rows]
 
 
+#: for each entry (j, k) of a symmetric 5 × 5 matrix, its index among the upper-triangle entries
+_SYM = np.zeros((5, 5), dtype=np.intp)
+_SYM[_IU] = np.arange(15)
+_SYM[_IU[1], _IU[0]] = np.arange(15)
+
+
 def _unpack(F):
     """(R, 15) upper-triangle entries → (R, 5, 5) symmetric."""
-    out = np.empty(F.shape[:-1] + (5, 5))
-    out[..., _IU[0], _IU[1]] = F
-    out[..., _IU[1], _IU[0]] = F
-    return out
+    return np.take(F, _SYM.ravel(), axis=-1).reshape(F.shape[:-1] + (5, 5))
 
 
 def _normal(P, Cb, a, mask, Mq, d, mm=None):
@@ -401,9 +404,10 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None):
     Cb = np.zeros((npad, 8))
     Cb[:n, :5] = basis.C
     CT = np.ascontiguousarray(Cb[:, :5].T)
-    Mq_all = basis.qmap(tmid, sd)
+    values, which = np.unique(tmid, return_inverse=True)  # a few Tmid values, many rows
+    Mq_all = basis.qmap(values, sd)[which]
     nq = Mq_all.shape[1]
-    mask_all = basis.mask(tmid)
+    mask_all = basis.mask(values)[which]
     group = max(TILE, (BLOCK_ELEMENTS // npad) // TILE * TILE)
     for g0 in range(0, R, group):
         rows = np.arange(g0, min(R, g0 + group))
