@@ -269,6 +269,33 @@ def test_tables_read_with_pandas_and_hold_table_fit_and_residuals():
 T298 = 298.15
 
 
+def test_whole_table_formatting_prints_every_cell_as_csv_number():
+    """csv_rows (array arithmetic for a whole table) against Python's correctly rounded
+    "%.Nf" per cell (csv_number): random magnitudes, exact halfway cases (k / 2**m), their
+    floating-point neighbours, tiny negatives that print as zero, values past the fast path."""
+    from pipeline.writers.formats import csv_number, csv_rows
+
+    rng = np.random.default_rng(3)
+    formats = [".2f", ".6f", ".1f", ".3f", ".6f", ".4f", ".5f"]
+    places = np.array([2, 6, 1, 3, 6, 4, 5])
+    for trial in range(400):
+        shape = (int(rng.integers(1, 30)), len(formats))
+        kind = trial % 5
+        if kind == 0:
+            X = rng.uniform(-1, 1, shape) * 10.0 ** rng.integers(-12, 8, shape)
+        elif kind == 1:
+            X = rng.integers(-10**6, 10**6, shape) / 2.0 ** rng.integers(0, 30, shape)
+        elif kind == 2:
+            half = (rng.integers(-10**8, 10**8, shape) + 0.5) / 10.0 ** places
+            X = np.where(rng.random(shape) < 0.3, half, np.nextafter(half, rng.choice([-np.inf, np.inf], shape)))
+        elif kind == 3:
+            X = rng.normal(0.0, 1e-6, shape)
+        else:
+            X = rng.choice([0.0, -0.0, -5e-7, 5e-7, 0.5, -2.5, 1e-300, 99999999.99999999, 1e8, -3e12, np.nan], shape)
+        expected = "".join(",".join(csv_number(v, f) for v, f in zip(row, formats)) + "\n" for row in X.tolist())
+        assert csv_rows(X, formats) == expected, X
+
+
 def test_report_has_one_row_per_species_in_name_order():
     settings, species, _, _, frags = small_build()
     report = assemble(frags, settings)["REPORT.md"].decode()
