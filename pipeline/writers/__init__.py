@@ -126,6 +126,7 @@ def species_fragments(species, table, fit, settings) -> dict[str, str]:
     T, cp, sm, dh, gfn = _at_table_step(species, table, _table_grid(s.tmin, s.tmax, s.table_step), pressure)
     Tf = np.asarray(table.T, dtype=float)
     inside = (Tf >= printed.tlow) & (Tf <= printed.thigh)
+    inside = slice(None) if inside.all() else inside  # the usual case: no copies
     Tf = Tf[inside]
     v = _printed_values(printed, (T, Tf))
     (cp_f, cpf_grid), (h_t, hf_grid), (s_f, sf_grid) = v["cp"], v["h"], v["s"]
