@@ -364,7 +364,7 @@ LAWSON_POWER = 1.5
 #: rows per group of the Lawson iteration: about this many grid values, so the work stays in cache
 BLOCK_ELEMENTS = 65536
 #: rows per matrix product: every product is a stack of products of this one shape
-TILE = 16
+TILE = 8
 
 
 def _tiled(a, b):
