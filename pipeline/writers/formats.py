@@ -313,6 +313,7 @@ def environment():
         undefined=jinja2.StrictUndefined,
     )
     env.filters.update(FILTERS)
+    env.globals.clear()  # the templates use only their context and filters; an empty table keeps each render cheap
     return env
 
 
