@@ -116,7 +116,9 @@ def species_fragments(species, table, fit, settings) -> dict[str, str]:
 
     s = settings.for_species(species)
     pressure = s.pressure_pa
-    fit = dataclasses.replace(fit, name=species.name, formula=tuple(species.formula), charge=int(species.charge))
+    formula, charge = tuple(species.formula), int(species.charge)
+    if (fit.name, fit.formula, fit.charge) != (species.name, formula, charge):
+        fit = dataclasses.replace(fit, name=species.name, formula=formula, charge=charge)
     printed = printed_fit(fit)
     quality = fit.quality.as_dict() if hasattr(fit.quality, "as_dict") else {}
     elements = record_elements(species.formula, species.charge)

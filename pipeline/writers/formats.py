@@ -187,9 +187,8 @@ def csv_rows(values, formats) -> str:
     if X.ndim != 2 or X.shape[1] != len(formats) or not all(_fixed_point(f) for f in formats):
         return "".join(",".join(csv_number(v, f) for v, f in zip(row, formats)) + "\n" for row in X)
     if X.size:
-        ax = np.abs(X)
         decimals = tuple(int(f[1]) for f in formats)
-        if min(decimals) >= 1 and max(decimals) <= 6 and np.all((ax < 1e8) & ((ax > 1e-280) | (X == 0.0))):
+        if min(decimals) >= 1 and max(decimals) <= 6 and np.abs(X).max() < 1e8:  # False for nan, inf
             return _fixed_point_rows(X, decimals)
     text = _rows_format(formats, X.shape[0]) % tuple((X + 0.0).ravel().tolist())
     if "-0." in text:  # perhaps a tiny negative printed as −0
@@ -254,7 +253,7 @@ def _fixed_point_rows(X, decimals: tuple) -> str:
     p = X * scale
     n = np.rint(p)  # nearest integer to p, ties to even
     r = p - n  # exact
-    if np.any(np.abs(r) == 0.5):  # p halfway: the rounding error of the product decides
+    if np.any(np.abs(r) == 0.5):  # p halfway: the product's error decides (used there only: |X| ≥ 5e-7, no underflow)
         c = 134217729.0 * X  # Dekker's split: X = xh + xl, 26 bits each; xh·scale, xl·scale exact
         xh = c - (c - X)
         err = (xh * scale - p) + (X - xh) * scale  # X·scale = p + err exactly
