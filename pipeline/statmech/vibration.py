@@ -62,10 +62,11 @@ def harmonic_groups(theta_v, starts, T):
         g1 = int(np.searchsorted(starts, starts[g0] + max(1, CHUNK // T.size), side="left"))
         g1 = max(g1, g0 + 1)
         lo = starts[g0]
-        x = theta_v[lo : ends[g1 - 1], None] / T[None, :]  # (modes, temperatures)
-        # with e = eˣ − 1 (accurate for small x; x capped where eˣ would overflow, weight e^-700):
-        # (H−H0)/RT = x/e, Cv/R = (x/e)² (1 + e), S/R = x/e + x − ln e
-        e = np.expm1(np.minimum(x, 700.0))
+        # (modes, temperatures); x capped at 700 where eˣ would overflow (terms below e^-690 ≈ 1e-300)
+        x = np.minimum(theta_v[lo : ends[g1 - 1], None] / T[None, :], 700.0)
+        # with e = eˣ − 1 (accurate for small x): (H−H0)/RT = x/e, Cv/R = (x/e)² (1 + e),
+        # S/R = x/e + x − ln e
+        e = np.expm1(x)
         h = x / e
         cv = h * h * (1.0 + e)
         s = h + (x - np.log(e))
