@@ -239,6 +239,16 @@ def test_stacked_tables_equal_single_tables(starter):
         assert (single.dhf298, single.s298, single.cp298) == (stacked.dhf298, stacked.s298, stacked.cp298)
 
 
+def test_frozen_vibrations_contribute_nothing():
+    """Far below θ_v a harmonic mode is in its ground level: S, H−H0 and Cv tend to zero
+    (McQuarrie, Statistical Mechanics, 1976, eqs. 6-20 to 6-23), also where e^(θ/T) overflows."""
+    from pipeline.statmech import harmonic
+
+    t = harmonic([6000.0, 3000.0], [2.0, 5.0, 8.0])  # θ/T from 375 to 3000
+    for values in (t.s_r, t.h_rt, t.cp_r):
+        assert np.all(np.isfinite(values)) and np.all(np.abs(values) < 1e-100)
+
+
 def test_quality_serialises_to_plain_values(starter):
     species, _, fits = starter
     fit = fits[[sp.name for sp in species].index("CO")]
