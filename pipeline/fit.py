@@ -85,7 +85,7 @@ TMID_FINE_STEP = 10.0
 SEARCH_SPACING, FINAL_SPACING = 80.0, 20.0
 #: Lawson stopping rule: max error ≤ (1 + tol) × certified lower bound, or the iteration cap
 FINAL_TOL, FINAL_ITERATIONS = 0.05, 40
-SEARCH_TOL, COARSE_ITERATIONS, FINE_ITERATIONS = 0.03, 3, 4
+SEARCH_TOL, COARSE_ITERATIONS, FINE_ITERATIONS = 0.03, 4, 6
 #: margin above the classical high-temperature Cp limit before warning (the fit's own error)
 CLASSICAL_MARGIN = 0.01
 #: a design-matrix condition number above this is reported as a warning
