@@ -503,11 +503,21 @@ def _poly_int(a, T):
     return h, s
 
 
-def _coefficients(basis, alpha, beta, tmid, dhf298, s298):
-    """Low and high seven-coefficient sets (R, 7) in kelvin units."""
+def _coefficients(basis, alpha, beta, tmid, dhf298, s298, flat=None):
+    """Low and high seven-coefficient sets (R, 7) in kelvin units.
+
+    ``flat`` (R,) holds, for a table whose Cp/R is one constant (a monatomic gas
+    without low-lying levels), that constant, else NaN: such rows get it as a1
+    and exact zeros for a2…a5 instead of the round-off the iteration leaves.
+    """
     scale = _X ** np.arange(5)
     lo5 = _mm(alpha, basis.K.T) / scale
     hi5 = _mm(alpha + beta, basis.K.T) / scale
+    if flat is not None:
+        rows = ~np.isnan(flat)
+        for five in (lo5, hi5):
+            five[rows] = 0.0
+            five[rows, 0] = flat[rows]
     # make Cp/R continuity exact in floating point (a correction at round-off level)
     hi5[:, 0] += nasa7.cp_r(lo5.T, tmid) - nasa7.cp_r(hi5.T, tmid)
     h0, s0 = _poly_int(lo5, T_REF)
@@ -765,7 +775,8 @@ def _results(basis, y, tables, opts, keeps, sd, tmid, auto, res):
     S = y.shape[0]
     dhf = np.array([t.dhf298 for t in tables])
     s298 = np.array([t.s298 for t in tables])
-    low, high = _coefficients(basis, res.alpha, res.beta, tmid, dhf, s298)
+    flat = np.where(np.ptp(y, axis=1) <= 1e-13 * np.abs(y[:, 0]), y[:, 0], np.nan)
+    low, high = _coefficients(basis, res.alpha, res.beta, tmid, dhf, s298, flat)
     a = _range_coefficients(low, high, tmid, T)
     cp_f, h_f, s_f = nasa7.cp_r(a, T), nasa7.h_rt(a, T), nasa7.s_r(a, T)
     h_t = np.stack([np.asarray(t.h, dtype=float)[k] for t, k in zip(tables, keeps)]) / (C.R * T)

@@ -340,3 +340,17 @@ def test_tmid_candidates_stay_inside_the_range():
     assert tmid_candidates(200.0, 6000.0).tolist() == [800.0 + 100.0 * k for k in range(13)]
     c = tmid_candidates(300.0, 1500.0, temperature_grid(300.0, 1500.0, 10.0))
     assert c.min() > 300.0 and c.max() < 1500.0
+
+
+def test_constant_heat_capacity_gives_clean_coefficients():
+    """A monatomic gas with only its ground level has Cp = 5/2 R exactly (translation
+    alone, Sackur–Tetrode): the fit carries a1 = 2.5 and exact zeros, not round-off."""
+    from pipeline.species import Species
+    from pipeline.thermo import temperature_grid, thermo_table
+
+    ar = Species(name="AR", formula=(("Ar", 1),), shape="atom", symmetry=1,
+                 mass=39.95 * C.atomic_mass, sources=("test",), formation_enthalpy=0.0)
+    fit = fit_table(thermo_table(ar, temperature_grid()), formula=ar.formula)
+    for coeffs in (fit.low, fit.high):
+        assert coeffs[0] == 2.5 and coeffs[1:5] == (0.0, 0.0, 0.0, 0.0)
+    assert fit.h_rt(298.15) == pytest.approx(0.0, abs=1e-12)
