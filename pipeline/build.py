@@ -203,6 +203,17 @@ class Inputs:
         return sha256_json([FORMAT, __version__, self.code, name, sha, settings_key, self.flags])
 
 
+def _manifest_current(manifest: dict | None, inputs: Inputs, out: Path, cache: Cache | None) -> bool:
+    """True if the last complete build had these inputs and its output files are untouched
+    (refreshing the recorded file states when only their mtimes moved)."""
+    if not (manifest and manifest.get("build_key") == inputs.build_key and manifest.get("complete")
+            and _outputs_unchanged(out, manifest)):
+        return False
+    if manifest.pop("touched", False) and cache is not None:
+        cache.store_manifest(manifest)
+    return True
+
+
 def _outputs_unchanged(out: Path, manifest: dict) -> bool:
     """True if every output file the manifest lists still has the bytes it recorded.
 
@@ -645,10 +656,7 @@ def _build_locked(inputs, out, cache, t0, *, jobs, keep_going, verbosity, as_jso
     if cache.recover() and verbosity > 0:
         _note(as_json, f"statherm: completed an interrupted build of {out.as_posix()}")
     manifest = cache.load_manifest()
-    if (manifest and manifest.get("build_key") == inputs.build_key and manifest.get("complete")
-            and _outputs_unchanged(out, manifest)):
-        if manifest.pop("touched", False):
-            cache.store_manifest(manifest)
+    if _manifest_current(manifest, inputs, out, cache):
         if verbosity > 1:
             _note(as_json, f"statherm: {out.as_posix()} is up to date ({len(inputs.files)} species)")
         return EXIT_OK
@@ -720,10 +728,7 @@ def _check(inputs: Inputs, out: Path, cache: Cache | None, verbosity: int, as_js
         return EXIT_OK
     # stale (or strict): rebuild in memory to say exactly what differs and why
     manifest = cache.load_manifest() if cache else None
-    if (manifest and manifest.get("build_key") == inputs.build_key and manifest.get("complete")
-            and _outputs_unchanged(out, manifest)):
-        if manifest.pop("touched", False):
-            cache.store_manifest(manifest)
+    if _manifest_current(manifest, inputs, out, cache):
         if verbosity > 1:
             _note(as_json, f"statherm: {out.as_posix()} is up to date")
         return EXIT_OK
