@@ -271,4 +271,20 @@ def cmd_bench(args) -> int:
         if tmp:
             shutil.rmtree(tmp, ignore_errors=True)
     sys.stdout.write(table(results))
+    sys.stdout.write(_fit_stage())
     return 0
+
+
+def _fit_stage(n: int = 1000) -> str:
+    """The fitting stage alone (issue 3 target: 1,000 species, Tmid search included, ≤ 1 s on
+    one core), timed in a child process with one BLAS thread."""
+    code = ("import json, pipeline.fit as f; r = f.benchmark_fit(%d); "
+            "print(json.dumps({'wall': r['seconds'], 'cpu': r['cpu_seconds']}))" % n)
+    env = {**os.environ, "OPENBLAS_NUM_THREADS": "1", "OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"}
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env, check=False)
+    try:
+        r = json.loads(done.stdout.strip().splitlines()[-1])
+    except (ValueError, IndexError):
+        return f"\n- fit stage: could not be timed ({done.stderr.strip().splitlines()[-1:]})\n"
+    return (f"\n- fit stage alone, {n:,} species, Tmid search included, one core: {r['wall']:.2f} s wall, "
+            f"{r['cpu']:.2f} s CPU (target ≤ 1 s) — {'met' if r['wall'] <= 1.0 else 'NOT met'}\n")
