@@ -574,3 +574,18 @@ def test_unseen_hindered_ch3_rotor():
     assert t.s298 == pytest.approx(ref_s("gri30.yaml", "CH3CHO", 298.15), abs=0.3)
     rel = t.cp / ref_cp("gri30.yaml", "CH3CHO", T) - 1
     assert np.max(np.abs(rel[:-1])) < 0.02 and abs(rel[-1]) < 0.03
+
+
+@pytest.mark.parametrize("name", ["OH", "CO", "N2", "H2"])
+def test_diatomic_level_sum_has_every_bound_level(database, name, monkeypatch):
+    """Generating four times as many J values (the cap and the rising-F rule trim them)
+    changes nothing: the J bound of each v lets no bound level escape, up to 6000 K."""
+    import pipeline.statmech.diatomic as dia
+
+    T = np.array([1000.0, 3000.0, 6000.0])
+    base = thermo_table(database[name], T)
+    real = dia._j_bound
+    monkeypatch.setattr(dia, "_j_bound", lambda *a: 4 * real(*a))
+    wide = thermo_table(database[name], T)
+    assert np.max(np.abs(wide.cp / base.cp - 1)) < 1e-9
+    assert np.max(np.abs(wide.s - base.s)) < 1e-9

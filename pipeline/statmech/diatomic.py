@@ -171,10 +171,8 @@ def _state_levels(d, offset: float, weight: float, ceiling: float):
         if Bv <= 0:
             break
         Dv = d.D_e + d.beta_e * x
-        # J(J+1) ≤ (cap − Gv)/Bv bounds J while F stays below B_v J(J+1);
-        # with H_e > 0, F may exceed it: extend the range, the E ≤ cap test trims it
-        jmax = int(0.5 * (-1 + math.sqrt(1 + 4 * (cap - Gv) / Bv))) + 2
-        if d.H_e > 0 and Dv > 0:
+        jmax = _j_bound(Bv, Dv, cap - Gv)
+        if d.H_e > 0 and Dv > 0:  # H_e J³(J+1)³ lifts F: extend, the E ≤ cap test trims it
             jmax = int(jmax * 1.5) + 2
         J = np.arange(jmax + 1, dtype=float)
         jj = J * (J + 1)
@@ -203,6 +201,24 @@ def _state_levels(d, offset: float, weight: float, ceiling: float):
             break
         v += 1
     return np.concatenate(energies), np.concatenate(weights)
+
+
+def _j_bound(Bv: float, Dv: float, room: float) -> int:
+    """Largest J worth generating for F(J) = B_v J(J+1) − D_v [J(J+1)]² ≤ ``room`` [m^-1].
+
+    With D_v > 0, F lies below B_v J(J+1), so that simple bound would drop bound
+    levels: take the smaller root of D_v x² − B_v x + room = 0 (x = J(J+1)), or
+    the top of the parabola, x = B_v/(2 D_v), when F never reaches ``room``.
+
+    >>> _j_bound(1.0, 0.0, 12.0), _j_bound(1.0, 0.01, 30.0) > _j_bound(1.0, 0.0, 30.0)
+    (5, True)
+    """
+    if Dv > 0:
+        disc = Bv * Bv - 4.0 * Dv * room
+        x = (Bv - math.sqrt(disc)) / (2.0 * Dv) if disc > 0 else Bv / (2.0 * Dv)
+    else:
+        x = room / Bv
+    return int(math.ceil(0.5 * (-1 + math.sqrt(1 + 4 * x)))) + 2
 
 
 def _doublet_pi_components(Bv, Dv, N, A):
