@@ -728,11 +728,8 @@ def _check(inputs: Inputs, out: Path, cache: Cache | None, verbosity: int, as_js
         return EXIT_OK
     # stale (or strict): rebuild in memory to say exactly what differs and why
     manifest = cache.load_manifest() if cache else None
-    if _manifest_current(manifest, inputs, out, cache):
-        if verbosity > 1:
-            _note(as_json, f"statherm: {out.as_posix()} is up to date")
-        return EXIT_OK
-    plan = _plan(inputs, out, cache, jobs=None, verbosity=0)
+    # strict: compute every species afresh rather than trusting the cache's entries
+    plan = _plan(inputs, out, None if strict else cache, jobs=None, verbosity=0)
     if plan.errors:
         _emit(plan.errors, verbosity, as_json)
         _note(as_json, f"statherm: {len({d.file for d in plan.errors})} species file(s) with errors: "
@@ -767,7 +764,8 @@ def _normalised(rel: str, data: bytes) -> bytes:
     if rel == "REPORT.md":
         from pipeline.diff import strip_since_last_build
 
-        return strip_since_last_build(data.decode("utf-8")).encode("utf-8")
+        # a damaged file must hash differently, not crash: undecodable bytes become U+FFFD
+        return strip_since_last_build(data.decode("utf-8", "replace")).encode("utf-8")
     return data
 
 

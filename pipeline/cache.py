@@ -73,7 +73,7 @@ def display_path(p: Path) -> str:
 
 #: package modules that never take part in a build (command-line front ends of other jobs):
 #: editing them keeps the cache valid
-NOT_BUILD_CODE = frozenset({"bench.py", "diff.py"})
+NOT_BUILD_CODE = frozenset({"bench.py"})
 
 
 def code_fingerprint() -> str:

@@ -6,6 +6,7 @@ Exit codes (all commands):
 * 1 — input or data errors (each reported as ``file: key: message``), or, for
   ``check`` / ``diff --fail-on-change``, "stale" / "changed"
 * 2 — usage errors (unknown command or option, missing argument)
+* 3 — internal error (a bug; ``--debug`` shows the traceback)
 
 No traceback is shown for bad input; ``--debug`` shows one for bugs.
 """
@@ -80,7 +81,7 @@ def build_parser(argv: list[str] | None = None) -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="statherm",
         description="Standard-state thermochemistry from molecular data: species/*.yaml → output/.",
-        epilog="Exit codes: 0 success, 1 input or data errors (or stale/changed), 2 usage errors.",
+        epilog="Exit codes: 0 success, 1 input or data errors (or stale/changed), 2 usage errors, 3 internal error.",
     )
     parser.add_argument("--version", action="version", version=f"statherm {__version__}")
     parser.add_argument("--debug", action="store_true", help="show tracebacks for internal errors")

@@ -504,6 +504,37 @@ def test_check_is_machine_independent(tmp_path, monkeypatch):
     assert rc == 1 and "thermo.yaml: differs from a fresh build" in err
 
 
+def test_strict_check_rebuilds_even_with_a_cache(tmp_path, monkeypatch):
+    """--strict trusts neither the cache's manifest nor its entries: it compares freshly
+    computed bytes."""
+    import dataclasses
+
+    import pipeline.fit
+
+    species, out = database(tmp_path)
+    assert (out / ".statherm-cache").is_dir()
+    real = pipeline.fit.fit_tables
+    monkeypatch.setattr(pipeline.fit, "fit_tables", lambda tables, options: [
+        dataclasses.replace(f, low=tuple(a * (1 + 1e-6) for a in f.low)) for f in real(tables, options)])
+    rc, _, err = run("check", "--species", str(species), "--out", str(out), "--strict")
+    assert rc == 1 and "differs from a fresh build" in err
+
+
+def test_check_with_a_cache_notices_a_left_over_file(tmp_path):
+    species, out = database(tmp_path)
+    (out / "tables" / "ZZZ.csv").write_text("T [K]\n", encoding="utf-8")
+    rc, _, err = run("check", "--species", str(species), "--out", str(out))
+    assert rc == 1 and "ZZZ.csv" in err
+
+
+def test_check_reports_a_damaged_report_without_a_traceback(tmp_path):
+    species, out = database(tmp_path)
+    with open(out / "REPORT.md", "ab") as fh:
+        fh.write(b"\xff\xfe")
+    rc, _, err = run("check", "--species", str(species), "--out", str(out))
+    assert rc == 1 and "REPORT.md" in err and "internal error" not in err
+
+
 def test_check_notices_a_hand_edited_output(tmp_path):
     species, out = database(tmp_path)
     table = out / "tables" / "CO2.csv"
