@@ -788,7 +788,7 @@ def _results(basis, y, tables, opts, keeps, sd, tmid, auto, res):
         "g_rt": _property_error(h_f - s_f, h_t - s_t, T, True),
     }
     # conditioning: the 1/Cp-scaled design matrix (unit weights), and evaluation of the monomials
-    G0, _ = _normal(basis.P, basis.C, 1.0 / y, basis.mask(tmid), basis.qmap(tmid, sd), y)
+    G0, _ = _normal(basis.P, basis.C, 1.0 / (y * y), basis.mask(tmid), basis.qmap(tmid, sd), y)  # a = w/y², w = 1
     ev = np.linalg.eigvalsh(G0)
     cond = np.sqrt(ev[:, -1] / np.maximum(ev[:, 0], 1e-300 * ev[:, -1]))
     Tp = T[None, :] ** np.arange(5)[:, None]  # (5, n)

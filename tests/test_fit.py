@@ -354,3 +354,16 @@ def test_constant_heat_capacity_gives_clean_coefficients():
     for coeffs in (fit.low, fit.high):
         assert coeffs[0] == 2.5 and coeffs[1:5] == (0.0, 0.0, 0.0, 0.0)
     assert fit.h_rt(298.15) == pytest.approx(0.0, abs=1e-12)
+
+
+def test_reported_condition_is_that_of_the_cp_scaled_design(database):
+    """FitQuality.condition is cond(B / Cp/R) of the fit's own design matrix (numpy SVD)."""
+    from pipeline import fit as F
+    from pipeline.thermo import temperature_grid, thermo_table
+
+    sp = database["CH4"]
+    table = thermo_table(sp, temperature_grid())
+    fit = fit_table(table, tmid=1000.0, formula=sp.formula)
+    basis = F._basis(np.ascontiguousarray(table.T).tobytes(), 200.0, 6000.0)
+    scaled = basis.design(1000.0, False) / (table.cp / C.R)[:, None]
+    assert fit.quality.condition == pytest.approx(np.linalg.cond(scaled), rel=1e-4)
