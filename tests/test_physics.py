@@ -28,25 +28,17 @@ from pipeline.statmech.terms import level_sum
 from pipeline.statmech.torsion import rotor_constant, torsion_levels, torsion_terms
 from pipeline.thermo import formation_at_298, thermo_table
 from pipeline.units import theta
-from tests.refdata import SPECIES_DIR
+from tests.refdata import SPECIES_DIR, bundled, reference_cp, reference_s
 
 U_A2 = C.atomic_mass * 1e-20  # kg m^2 per u Å^2
 
 
-@functools.lru_cache(maxsize=None)
-def _cantera(source: str):
-    import cantera as ct
-
-    return {s.name.upper(): s for s in ct.Species.list_from_file(source)}
-
-
 def ref_cp(source: str, name: str, T) -> np.ndarray:
-    th = _cantera(source)[name.upper()].thermo
-    return np.array([th.cp(float(t)) for t in np.atleast_1d(T)]) / 1e3
+    return reference_cp(name, T, source)
 
 
 def ref_s(source: str, name: str, T: float) -> float:
-    return _cantera(source)[name.upper()].thermo.s(T) / 1e3
+    return float(reference_s(name, [T], source)[0])
 
 
 @functools.lru_cache(maxsize=None)
@@ -530,7 +522,7 @@ formation: {{enthalpy: 0.0}}
 sources: ["Huber & Herzberg 1979, from memory"]
 """
     sp, _ = parse_species(text.encode(), f"{name}.yaml")
-    ref = _cantera("nasa_gas.yaml")[name].thermo
+    ref = bundled("nasa_gas.yaml")[name].thermo
     T = T_CHECK[T_CHECK >= ref.min_temp]
     t = thermo_table(sp, T)
     assert t.s298 == pytest.approx(ref.s(298.15) / 1e3, abs=0.05)
