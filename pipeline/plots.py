@@ -208,8 +208,10 @@ def render_plot(table, fit, uncertainty=None, reference=None, title: str | None 
             title = (f"{table.name}    ΔfH°298 = {table.dhf298 / 1e3:.3f} kJ/mol    "
                      f"S°298 = {table.s298:.3f} J/mol/K    Tmid = {fit.tmid:g} K")
             if uncertainty is not None:
-                ug = [uncertainty.at("g", t) / 1e3 for t in (298.15, 1000.0)]
-                title += f"\nu(G°) = {ug[0]:.3f} kJ/mol at 298.15 K, {ug[1]:.3f} kJ/mol at 1000 K"
+                from pipeline.uncertainty import REPORT_TEMPERATURES
+
+                ug = [(t, uncertainty.at("g", t) / 1e3) for t in REPORT_TEMPERATURES]
+                title += "\nu(G°) = " + ", ".join(f"{u:.3f} kJ/mol at {t:g} K" for t, u in ug if u == u)
         fig.suptitle(title, fontsize=11)
         return _png(fig, Canvas)
 

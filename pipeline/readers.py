@@ -216,8 +216,8 @@ def _record(group, default_tmid, fail) -> Nasa7Fit:
         except ValueError:
             fail(group[row][0], f"columns {col + 1}–{col + 15} of {name!r}: {field.strip()!r} is not a number")
     high, low = tuple(coeffs[:7]), tuple(coeffs[7:])
-    if not (tlow < tmid < thigh):
-        tmid = min(max(tmid, tlow), thigh)
+    if not (tlow <= tmid <= thigh):
+        fail(n1, f"{name!r}: Tmid {tmid:g} K is outside Tlow–Thigh ({tlow:g}–{thigh:g} K)")
     return Nasa7Fit(
         name=name, formula=tuple(formula), tlow=tlow, tmid=tmid, thigh=thigh, low=low, high=high,
         charge=charge, phase=phase, extra={"identifier": identifier, "line": n1},

@@ -84,10 +84,11 @@ class ThermoUncertainty:
     PROPERTIES = ("cp", "s", "h_minus_h298", "h", "g", "g_fn")
 
     def at(self, prop: str, T: float) -> float:
-        """u(prop) at one temperature [K], linear in T between grid points."""
+        """u(prop) at one temperature [K], linear in T between grid points; NaN outside
+        the grid (a species whose range ends below T has no u there, not its end value)."""
         if prop not in self.PROPERTIES:
             raise KeyError(f"{prop!r} is not one of {', '.join(self.PROPERTIES)}")
-        return float(np.interp(T, self.T, getattr(self, prop)))
+        return float(np.interp(T, self.T, getattr(self, prop), left=np.nan, right=np.nan))
 
     def dominant(self, T: float) -> str:
         """The species-file key contributing most to u(G°) at T [K] ('' for Monte Carlo)."""

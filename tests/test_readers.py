@@ -108,6 +108,7 @@ def test_records_without_header_are_read():
     (lambda t: t.replace("    2\n", "    3\n", 1), "expected line 2"),
     (lambda t: t[:81] + "x.yz" + t[85:], "is not a number"),
     (lambda t: t[:50] + "?" * 6 + t[56:], "Tlow, Thigh, Tmid"),
+    (lambda t: t[:65] + "  100.00" + t[73:], "Tmid 100 K is outside"),
     (lambda t: t[:24] + " " * 20 + t[44:], "no element"),
 ])
 def test_damaged_records_name_file_line_and_problem(damage, expect):
@@ -138,3 +139,15 @@ def test_a_file_in_another_layout_holds_no_records_and_stray_text_in_a_section_i
     text = "THERMO\n   300.000  1000.000  5000.000\n" + foreign_record(gri["H2O"]) + "H2O2 (see below)\nEND\n"
     with pytest.raises(InputError, match="line 7: expected the first line of a record"):
         read_records(text, name="stray.dat")
+
+
+def test_a_name_filling_its_columns_reads_back_alone():
+    """An 18-character name (columns 1–18, NASA TM-4513 layout) keeps its identity on reading."""
+    from pipeline.nasa7 import Nasa7Fit
+    from pipeline.writers import record_text
+
+    coeffs = (2.5, 0.0, 0.0, 0.0, 0.0, -745.375, 4.37967)
+    fit = Nasa7Fit(name="A" * 18, formula=(("Ar", 1),), tlow=200.0, tmid=1000.0, thigh=6000.0,
+                   low=coeffs, high=coeffs)
+    (back,) = read_records(record_text(fit, "9F86D0"), name="long.dat")
+    assert back.name == "A" * 18

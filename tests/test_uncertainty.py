@@ -211,3 +211,17 @@ def test_band_written_into_thermo_yaml_and_tables(tmp_path, database):
     assert np.allclose(csv["u(Cp) [J/mol/K]"], expect.cp, atol=1e-6)
     assert np.allclose(csv["u(G) [kJ/mol]"], expect.g / 1e3, atol=1e-6)
     assert not [c for c in pd.read_csv(tmp_path / "out" / "tables" / "OH.csv").columns if c.startswith("u(")]
+
+
+def test_no_uncertainty_quoted_outside_the_range(database):
+    """A species fitted over 200–800 K has no u(G°) at 1000 K (not its 800 K value)."""
+    import dataclasses
+
+    from pipeline.species import FitOptions
+    from pipeline.thermo import temperature_grid
+    from pipeline.uncertainty import propagate, report_values
+
+    sp = dataclasses.replace(database["H2O"], fit=FitOptions(tmin=200.0, tmax=800.0))
+    u = propagate(sp, temperature_grid(200.0, 800.0, 10.0))
+    values = report_values(u)
+    assert values["g298"] > 0 and values["g1000"] != values["g1000"]  # NaN

@@ -288,6 +288,10 @@ def _record(p, identifier: str) -> str:
         raise ValueError(f"{p.name}: {len(elements)} elements (electron included) do not fit a record (at most 5)")
     if len(identifier) > 6:
         raise ValueError(f"{p.name}: identifier {identifier!r} is longer than columns 19–24")
+    if len(p.name) > 18:
+        raise ValueError(f"{p.name}: a record name holds at most 18 characters (columns 1–18)")
+    if len(p.name) == 18:
+        identifier = ""  # a name filling columns 1–18 would run into it and read back as one word
     text = render(
         "record.dat.j2", name=p.name, identifier=identifier,
         elements=elements[:4] + [None] * (4 - len(elements[:4])), fifth=elements[4] if len(elements) > 4 else None,
