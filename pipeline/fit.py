@@ -966,7 +966,7 @@ def classical_cp_r(species, tlow: float = 200.0, thigh: float = 6000.0) -> float
     >>> classical_cp_r(h2o)
     7.0
     """
-    from pipeline.statmech import electronic, harmonic_frequencies, species_terms
+    from pipeline.statmech import electronic, harmonic_frequencies
 
     T = np.linspace(tlow, thigh, 60)  # the largest contributions are broad: 60 points find them
     value = 2.5

@@ -225,10 +225,6 @@ class Species:
         return sum(n for _, n in self.formula)
 
     @property
-    def formula_dict(self) -> dict[str, int]:
-        return dict(self.formula)
-
-    @property
     def molar_mass(self) -> float:
         """Molar mass [kg/mol]."""
         return self.mass * C.N_A
