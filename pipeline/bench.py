@@ -74,7 +74,10 @@ def register(sub) -> None:
                        description=__doc__.split("\n\n")[0])
     p.add_argument("--sizes", type=_positive, nargs="+", default=[1000, 10000], metavar="N",
                    help="numbers of species (default: 1000 10000)")
-    p.add_argument("-j", "--jobs", type=int, default=1, metavar="N", help="build worker processes (default 1)")
+    from pipeline.build import jobs_value
+
+    p.add_argument("-j", "--jobs", type=jobs_value, default="auto", metavar="N|auto",
+                   help="build worker processes (default: auto, as statherm build)")
     p.add_argument("--repeat", type=_positive, default=2, metavar="R", help="runs per timing, best kept (default 2)")
     p.add_argument("--keep", metavar="DIR", help="work in DIR and keep it (default: a temporary folder)")
     p.set_defaults(func=cmd_bench)
@@ -188,7 +191,7 @@ def frozen_code(work: Path) -> Path:
     return dest
 
 
-def bench_size(n: int, work: Path, *, jobs: int = 1, repeat: int = 2, log=print, code: Path | None = None) -> dict:
+def bench_size(n: int, work: Path, *, jobs: int | str = "auto", repeat: int = 2, log=print, code: Path | None = None) -> dict:
     """Time the cold, no-op and one-changed builds of ``n`` synthetic species and their floor.
 
     The builds run ``python -m pipeline`` from ``code`` (see :func:`frozen_code`;

@@ -80,6 +80,18 @@ def _tmid(value: str):
         raise argparse.ArgumentTypeError(f"{value!r} is not a temperature [K] or 'auto'") from None
 
 
+def jobs_value(value: str) -> int | str:
+    if value == "auto":
+        return value
+    try:
+        n = int(value)
+    except ValueError:
+        n = 0
+    if n < 1:
+        raise argparse.ArgumentTypeError(f"{value!r} is not a positive whole number or 'auto'")
+    return n
+
+
 def _shard(value: str) -> tuple[int, int]:
     try:
         i, n = (int(v) for v in value.split("/"))
@@ -114,7 +126,8 @@ def register(sub) -> None:
                        description=__doc__.split("\n\n")[0],
                        epilog="Exit codes: 0 success, 1 input or data errors, 2 usage errors.")
     _common(p)
-    p.add_argument("-j", "--jobs", type=int, metavar="N", help="worker processes (default: jobs setting, 1)")
+    p.add_argument("-j", "--jobs", type=jobs_value, metavar="N|auto",
+                   help="worker processes (default: the jobs setting, auto = one per CPU)")
     p.add_argument("--shard", type=_shard, metavar="I/N", help="compute only slice I of N into the cache")
     p.add_argument("-k", "--keep-going", action="store_true",
                    help="write the good species even if some fail (exit code still 1)")
@@ -151,8 +164,6 @@ def _verbosity(args) -> int:
 
 
 def cmd_build(args) -> int:
-    if args.jobs is not None and args.jobs < 1:
-        raise InputError([Diagnostic("command line", "--jobs", f"{args.jobs} is not a positive integer")])
     return build(args.species, args.out, flags=_flags(args), jobs=args.jobs, shard=args.shard,
                  keep_going=args.keep_going, verbosity=_verbosity(args), as_json=args.json,
                  progress=args.progress)
@@ -254,8 +265,8 @@ def _apply_flags(species, flags: dict):
 def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list[dict], list[dict]]:
     """Compute the cache entries of ``items`` = [(key, display path, bytes)].
 
-    Returns (entries, error diagnostics as dicts).  Entries are stored in the
-    cache (when ``cache_root`` is given) as they are made.
+    Returns (entries, error diagnostics as dicts).  The entries are stored in
+    the cache (when ``cache_root`` is given) as one pack.
     """
     from pipeline.fit import fit_options, fit_tables
     from pipeline.species import _Checker, check_ranges, parse_species
@@ -338,14 +349,14 @@ def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list
             "warnings": [d.as_dict() for d in list(warns) + fit_warns],
             "fragments": fragments,
         }
-        if cache is not None:
-            try:
-                cache.store_entry(entry, extra)
-            except OSError:
-                pass  # a cache that cannot be written only costs time
         entry["files"] = {rel: sha256_bytes(b) for rel, b in extra.items()}
         entry["_extra"] = extra
         entries.append(entry)
+    if cache is not None:
+        try:
+            cache.store_entries([(e, e["_extra"]) for e in entries])
+        except OSError:
+            pass  # a cache that cannot be written only costs time
     return entries, [d.as_dict() for d in errors]
 
 
@@ -370,7 +381,7 @@ def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progres
         return entries, errors
     import multiprocessing
 
-    import pipeline.fit, pipeline.species, pipeline.thermo, pipeline.writers  # noqa: F401,E401 (before fork)
+    import jinja2, pipeline.fit, pipeline.species, pipeline.thermo, pipeline.writers  # noqa: F401,E401 (before fork)
 
     ctx = multiprocessing.get_context("fork" if sys.platform != "win32" else "spawn")
     with ctx.Pool(jobs) as pool:
@@ -411,7 +422,7 @@ def _in_shard(name: str, shard: tuple[int, int] | None) -> bool:
 def _plan(inputs: Inputs, out: Path, cache: Cache | None, *, jobs: int | None, shard=None,
           keep_going: bool = False, verbosity: int = 1, progress: bool = False,
           since_last: bool = False) -> Plan:
-    from pipeline.settings import load_settings
+    from pipeline.settings import load_settings, workers
 
     settings = load_settings(inputs.dir)
     glob = settings.replace(**inputs.flags)
@@ -443,7 +454,7 @@ def _plan(inputs: Inputs, out: Path, cache: Cache | None, *, jobs: int | None, s
     try:
         entries, errors = _compute_all(todo, settings, inputs.flags,
                                        cache.root.as_posix() if cache else None,
-                                       jobs or settings.jobs, bar)
+                                       workers(jobs or settings.jobs), bar)
     finally:
         bar.close()
     plan.errors = [Diagnostic(**d) for d in errors]

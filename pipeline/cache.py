@@ -8,7 +8,8 @@ one machine; deleting it only costs a cold rebuild)::
 
     lock             flock(2) target: one build (or check) per output folder at a time
     manifest.json    what the last build read and wrote (inputs, settings, code, output stats)
-    entries/KEY.json one species' computed fragments, KEY = sha256 of everything they depend on
+    entries/pack-SHA.json  computed species, many to a file: {"format", "entries": {KEY: entry}},
+                     KEY = sha256 of everything an entry depends on, SHA = sha256 of the file
     blobs/SHA        binary per-species files (e.g. plots), content-addressed
     journal.json     present only while a build moves its files into place
     tmp/             new file contents before they are moved into place
@@ -34,7 +35,11 @@ import time
 from pathlib import Path
 
 CACHE_DIR = ".statherm-cache"
-FORMAT = 1  # bump when the layout of entries or the manifest changes
+FORMAT = 2  # bump when the layout of entries or the manifest changes (2: entries in packs)
+#: a pack is rewritten by :meth:`Cache.prune` when more than this share of its entries is dead
+PACK_DEAD_SHARE = 0.25
+#: more packs than this (e.g. after many one-species rebuilds) are merged into one by :meth:`Cache.prune`
+MAX_PACKS = 64
 
 
 def sha256_bytes(data: bytes) -> str:
@@ -201,52 +206,123 @@ class Cache:
     def __init__(self, out: Path):
         self.out = out
         self.root = out / CACHE_DIR
+        self._pack_cache: dict[str, dict] | None = None
 
     # -- entries ------------------------------------------------------------
+    #
+    # One file per build chunk ("pack"), not one per species: a cold build of
+    # 1,000 species then writes a handful of cache files instead of 1,000.  A
+    # pack is named by the sha256 of its bytes and written atomically, so
+    # concurrent shards never write the same name with different contents; a
+    # damaged or foreign file in entries/ is ignored (and pruned).
 
-    def entry_path(self, key: str) -> Path:
-        return self.root / "entries" / f"{key}.json"
+    def _packs(self) -> dict[str, dict]:
+        """Pack file name → its entries (key → entry), read once per Cache."""
+        if self._pack_cache is None:
+            packs: dict[str, dict] = {}
+            folder = self.root / "entries"
+            try:
+                names = sorted(os.listdir(folder))
+            except OSError:
+                names = []
+            for name in names:
+                data = read_json(folder / name) if name.startswith("pack-") else None
+                if isinstance(data, dict) and data.get("format") == FORMAT and isinstance(data.get("entries"), dict):
+                    packs[name] = data["entries"]
+            self._pack_cache = packs
+        return self._pack_cache
 
     def load_entry(self, key: str) -> dict | None:
-        entry = read_json(self.entry_path(key))
-        if not isinstance(entry, dict) or entry.get("key") != key:
+        for entries in self._packs().values():
+            entry = entries.get(key)
+            if isinstance(entry, dict) and entry.get("key") == key:
+                break
+        else:
             return None
         blobs = entry.get("files", {})
         if any(not (self.root / "blobs" / sha).is_file() for sha in blobs.values()):
             return None
-        return entry
+        return dict(entry)
 
-    def store_entry(self, entry: dict, files: dict[str, bytes] | None = None) -> None:
-        """Store one species' entry; binary ``files`` (output path → bytes) go to ``blobs/``."""
-        entry = dict(entry)
-        entry.pop("_extra", None)
-        refs = dict(entry.get("files") or {})
-        for rel, data in (files or {}).items():
-            sha = sha256_bytes(data)
-            blob = self.root / "blobs" / sha
-            if not blob.exists():
-                write_atomic(blob, data)
-            refs[rel] = sha
-        entry["files"] = refs
-        write_atomic(self.entry_path(entry["key"]), dump_json(entry))
+    def store_entries(self, items: list[tuple[dict, dict[str, bytes]]]) -> None:
+        """Store species' entries as one pack; each item is (entry, binary files).
+
+        Binary files (output path → bytes, e.g. plots) go to ``blobs/`` under
+        their sha256; the entry keeps the references.
+        """
+        entries = {}
+        for entry, files in items:
+            entry = dict(entry)
+            entry.pop("_extra", None)
+            refs = dict(entry.get("files") or {})
+            for rel, data in (files or {}).items():
+                sha = sha256_bytes(data)
+                blob = self.root / "blobs" / sha
+                if not blob.exists():
+                    write_atomic(blob, data)
+                refs[rel] = sha
+            entry["files"] = refs
+            entries[entry["key"]] = entry
+        if not entries:
+            return
+        self._write_pack(entries)
+
+    def _write_pack(self, entries: dict[str, dict]) -> str:
+        data = dump_json({"format": FORMAT, "entries": entries})
+        name = f"pack-{sha256_bytes(data)[:32]}.json"
+        write_atomic(self.root / "entries" / name, data)
+        if self._pack_cache is not None:
+            self._pack_cache[name] = entries
+        return name
 
     def blob(self, sha: str) -> bytes:
         return (self.root / "blobs" / sha).read_bytes()
 
     def prune(self, keep_entries: set[str], keep_blobs: set[str]) -> None:
-        """Delete entries and blobs no current species refers to."""
-        for folder, keep, suffix in (("entries", keep_entries, ".json"), ("blobs", keep_blobs, "")):
+        """Forget entries and blobs no current species refers to.
+
+        A pack with no live entry is deleted; packs with more than
+        :data:`PACK_DEAD_SHARE` dead entries (all packs, when there are more
+        than :data:`MAX_PACKS`) are merged into one new pack of their live
+        entries, written before the old ones are deleted, so a kill in between
+        only leaves duplicates.
+        """
+        self._pack_cache = None
+        packs = self._packs()
+        folder = self.root / "entries"
+        try:
+            present = os.listdir(folder)
+        except OSError:
+            present = []
+        drop = [name for name in present if name not in packs]  # damaged, foreign or old-format files
+        merge: dict[str, dict] = {}
+        crowded = len(packs) > MAX_PACKS
+        for name, entries in packs.items():
+            live = {k: e for k, e in entries.items() if k in keep_entries}
+            if not live:
+                drop.append(name)
+            elif crowded or len(live) < (1.0 - PACK_DEAD_SHARE) * len(entries):
+                merge.update(live)
+                drop.append(name)
+        if merge:
+            kept = self._write_pack(merge)
+            drop = [name for name in drop if name != kept]
+        for name in drop:
             try:
-                names = os.listdir(self.root / folder)
+                os.unlink(folder / name)
             except OSError:
-                continue
-            for name in names:
-                stem = name[: -len(suffix)] if suffix and name.endswith(suffix) else name
-                if stem not in keep:
-                    try:
-                        os.unlink(self.root / folder / name)
-                    except OSError:
-                        pass
+                pass
+        try:
+            names = os.listdir(self.root / "blobs")
+        except OSError:
+            names = []
+        for name in names:
+            if name not in keep_blobs:
+                try:
+                    os.unlink(self.root / "blobs" / name)
+                except OSError:
+                    pass
+        self._pack_cache = None
 
     # -- manifest -----------------------------------------------------------
 

@@ -16,7 +16,7 @@ below.
     g_uncertainty_warning: 4.184  # kJ/mol; REPORT.md lists species whose u(G°, 1000 K) exceeds it
     plots: false           # write output/plots/ (needs the 'plot' extra)
     report_changes: false  # REPORT.md opens with what changed since the last build (from the cache)
-    jobs: 1                # worker processes for builds
+    jobs: auto             # worker processes for builds: auto (one per CPU this process may use) or N
 """
 
 from __future__ import annotations
@@ -43,7 +43,7 @@ class Settings:
     g_uncertainty_warning: float = 4.184  # [kJ/mol] 1 kcal/mol, "chemical accuracy" (common practice)
     plots: bool = False
     report_changes: bool = False
-    jobs: int = 1
+    jobs: int | str = "auto"
 
     @property
     def pressure_pa(self) -> float:
@@ -70,6 +70,25 @@ class Settings:
 
 
 SETTINGS_FILE = "statherm.yaml"
+
+
+def workers(jobs: int | str) -> int:
+    """Worker processes for a ``jobs`` setting: N itself, or for ``auto`` the CPUs this
+    process may run on (its affinity mask, which container and batch limits set).
+
+    >>> workers(3)
+    3
+    >>> workers("auto") >= 1
+    True
+    """
+    if jobs != "auto":
+        return int(jobs)
+    import os
+
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # no affinity masks on this platform
+        return max(1, os.cpu_count() or 1)
 
 
 def load_settings(database: str | Path, base: Settings | None = None) -> Settings:
@@ -111,7 +130,7 @@ def load_settings(database: str | Path, base: Settings | None = None) -> Setting
             else:
                 values[key] = m[key]
     if "jobs" in m:
-        values["jobs"] = ck.integer(m["jobs"], "jobs", minimum=1)
+        values["jobs"] = "auto" if m["jobs"] == "auto" else ck.integer(m["jobs"], "jobs", minimum=1)
     if not ck.failed:
         tmid = values.get("tmid", base.tmid)
         check_ranges(ck, values.get("tmin", base.tmin), None if tmid == "auto" else tmid,

@@ -541,3 +541,71 @@ def test_check_notices_a_hand_edited_output(tmp_path):
     table.write_bytes(table.read_bytes().replace(b"200.00,", b"200.01,", 1))
     rc, _, err = run("check", "--species", str(species), "--out", str(out))
     assert rc == 1 and "CO2.csv" in err
+
+
+def _packs(out: Path) -> dict[str, set[str]]:
+    """Cache pack file → the keys of the entries it holds."""
+    folder = out / ".statherm-cache" / "entries"
+    return {p.name: set(json.loads(p.read_bytes())["entries"]) for p in folder.iterdir()}
+
+
+def test_cache_entries_are_packed_and_dead_ones_pruned(tmp_path):
+    species, out = database(tmp_path)
+    packs = _packs(out)
+    assert sum(len(k) for k in packs.values()) == len(SMALL)  # one build, one pack per chunk
+    assert len(packs) < len(SMALL)
+    # one edit: a one-entry pack appears; the old pack has 1 of 5 entries dead (20 % ≤ 25 %): kept
+    edit(species / "CH4.yaml", "enthalpy: -74.52", "enthalpy: -74.00")
+    assert run("build", "--species", str(species), "--out", str(out), "--quiet")[0] == 0
+    live = set(json.loads((out / ".statherm-cache" / "manifest.json").read_bytes())["entries"].values())
+    packs = _packs(out)
+    assert live <= set().union(*packs.values())
+    # a second edit kills 2 of 5 in the first pack (40 % > 25 %): its live entries are merged
+    edit(species / "H2O.yaml", "sources:", "# edited\nsources:")
+    rc, _, err = run("build", "--species", str(species), "--out", str(out), "--quiet")
+    assert rc == 0, err
+    live = set(json.loads((out / ".statherm-cache" / "manifest.json").read_bytes())["entries"].values())
+    packs = _packs(out)
+    held = [k for keys in packs.values() for k in keys]
+    assert set(held) == live  # no dead entry left
+    # the pruned cache still serves every species: deleting the output rebuilds nothing
+    before = snapshot(out)
+    for rel in before:
+        (out / rel).unlink()
+    rc, _, err = run("build", "--species", str(species), "--out", str(out), "--verbose")
+    assert rc == 0, err
+    assert "0 computed" in err
+    assert {rel: b for rel, (b, _) in snapshot(out).items()} == {rel: b for rel, (b, _) in before.items()}
+
+
+def test_damaged_or_foreign_cache_files_are_ignored(tmp_path):
+    species, out = database(tmp_path)
+    before = {rel: b for rel, (b, _) in snapshot(out).items()}
+    entries = out / ".statherm-cache" / "entries"
+    for p in entries.iterdir():
+        p.write_bytes(p.read_bytes()[: len(p.read_bytes()) // 2])  # a torn file
+    (entries / "stray.json").write_text("{}")
+    (out / "thermo.dat").unlink()
+    rc, _, err = run("build", "--species", str(species), "--out", str(out), "--verbose")
+    assert rc == 0, err
+    assert f"{len(SMALL)} computed" in err
+    assert {rel: b for rel, (b, _) in snapshot(out).items()} == before
+    assert "stray.json" not in {p.name for p in entries.iterdir()}
+
+
+def test_jobs_setting_auto_number_or_error(tmp_path):
+    from pipeline.settings import load_settings, workers
+
+    (tmp_path / "statherm.yaml").write_text("jobs: auto\n")
+    assert load_settings(tmp_path).jobs == "auto"
+    assert workers("auto") == len(os.sched_getaffinity(0))
+    (tmp_path / "statherm.yaml").write_text("jobs: 3\n")
+    assert workers(load_settings(tmp_path).jobs) == 3
+    (tmp_path / "statherm.yaml").write_text("jobs: 0\n")
+    from pipeline.diagnostics import InputError
+
+    with pytest.raises(InputError) as err:
+        load_settings(tmp_path)
+    assert err.value.diagnostics[0].key == "jobs"
+    proc = run_process("build", "--jobs", "0", "--out", str(tmp_path / "out"))
+    assert proc.returncode == 2 and "--jobs" in proc.stderr and "Traceback" not in proc.stderr
