@@ -94,13 +94,95 @@ def _construct_int(loader, node):
 SpeciesLoader.add_constructor("tag:yaml.org,2002:int", _construct_int)
 
 
+_STR, _SEQ, _MAP = "tag:yaml.org,2002:str", "tag:yaml.org,2002:seq", "tag:yaml.org,2002:map"
+_INT, _FLOAT = "tag:yaml.org,2002:int", "tag:yaml.org,2002:float"
+_BOOL, _NULL = "tag:yaml.org,2002:bool", "tag:yaml.org,2002:null"
+#: the implicit tag of a plain scalar by its first character: [(tag, regex)] in order
+_BY_FIRST: dict[str, list[tuple[str, re.Pattern]]] = {}
+for _tag, _regex, _first in _RESOLVERS:
+    for _ch in _first:
+        _BY_FIRST.setdefault(_ch, []).append((_tag, re.compile(_regex)))
+_CORE = {tag: re.compile(regex) for tag, regex, _ in _RESOLVERS}
+_SPECIAL_FLOAT = {".inf": math.inf, "+.inf": math.inf, "-.inf": -math.inf, ".nan": math.nan}
+
+
+def _resolve(self, kind, value, implicit):
+    """The tag of a node (Resolver.resolve for :data:`_RESOLVERS`, without path resolvers)."""
+    if kind is yaml.ScalarNode:
+        if implicit[0]:
+            for tag, regex in _BY_FIRST.get(value[:1], ()):
+                if regex.match(value):
+                    return tag
+        return _STR
+    return _SEQ if kind is yaml.SequenceNode else _MAP
+
+
+SpeciesLoader.resolve = _resolve
+
+
+def _native(loader, node, memo: dict, busy: set) -> Any:
+    """The Python value of a composed node: the core-schema types of :class:`SpeciesLoader`,
+    without its generic constructor machinery; any other tag goes to the loader's own
+    constructors (so a ``!!python/...`` tag is refused exactly as there)."""
+    tag = node.tag
+    if type(node) is yaml.ScalarNode:
+        v = node.value
+        if tag == _STR:
+            return v
+        if tag in _CORE and _CORE[tag].match(v):  # an explicit tag on another spelling: below
+            if tag == _FLOAT:
+                return _SPECIAL_FLOAT.get(v.lower()) if v[-1:] in "fFnN" else float(v)
+            if tag == _INT:
+                return int(v, 10)
+            return None if tag == _NULL else v in ("true", "True", "TRUE")
+        return loader.construct_object(node, deep=True)
+    key = id(node)
+    if key in memo:  # an alias: the same object, as PyYAML gives (no exponential copies)
+        return memo[key]
+    if key in busy:
+        raise yaml.constructor.ConstructorError(None, None, "a recursive alias is not allowed", node.start_mark)
+    busy.add(key)
+    if tag == _SEQ and type(node) is yaml.SequenceNode:
+        out: Any = [_native(loader, item, memo, busy) for item in node.value]
+    elif tag == _MAP and type(node) is yaml.MappingNode:
+        out = {}
+        for key_node, value_node in node.value:
+            k = _native(loader, key_node, memo, busy)
+            try:
+                hash(k)
+            except TypeError:
+                raise yaml.constructor.ConstructorError(
+                    "while reading a mapping", node.start_mark, "a key must be a plain value",
+                    key_node.start_mark,
+                ) from None
+            if k in out:
+                raise yaml.constructor.ConstructorError(
+                    "while reading a mapping", node.start_mark, f"duplicate key {k!r}", key_node.start_mark,
+                )
+            out[k] = _native(loader, value_node, memo, busy)
+    else:
+        out = loader.construct_object(node, deep=True)
+    busy.discard(key)
+    memo[key] = out
+    return out
+
+
 def load_yaml(text: str) -> Any:
     """Parse YAML text with :class:`SpeciesLoader` (raises ``yaml.YAMLError``).
+
+    libyaml (when PyYAML has it) composes the node graph; :func:`_native` turns
+    it into Python values.  Same result as ``yaml.load(text, SpeciesLoader)``
+    (tested), at about half the cost.
 
     >>> load_yaml("name: NO\\nflag: off\\nx: 1e3")
     {'name': 'NO', 'flag': 'off', 'x': 1000.0}
     """
-    return yaml.load(text, Loader=SpeciesLoader)  # noqa: S506 - safe loader subclass
+    loader = SpeciesLoader(text)
+    try:
+        node = loader.get_single_node()
+        return None if node is None else _native(loader, node, {}, set())
+    finally:
+        loader.dispose()
 
 
 # --------------------------------------------------------------------------
@@ -601,6 +683,9 @@ def parse_species(data: bytes, file: str) -> tuple[Species, list[Diagnostic]]:
         raise InputError([Diagnostic(file, where, f"YAML syntax error: {problem}")]) from None
     except RecursionError:
         raise InputError([Diagnostic(file, "", "YAML nesting is too deep")]) from None
+    except (ValueError, KeyError, TypeError) as exc:  # an explicit tag on a value it cannot take: !!float abc
+        raise InputError([Diagnostic(file, "", "YAML value cannot be read: an explicit tag does not fit "
+                                               f"its value ({exc})")]) from None
     if doc is None:
         raise InputError([Diagnostic(file, "", "is empty (expected a species mapping: name, formula, ...)")])
     if not isinstance(doc, dict):

@@ -95,3 +95,46 @@ def test_mutated_species_files(text, data):
         raw = raw[:i] + data.draw(st.binary(max_size=6) | st.sampled_from(
             [b"", b":", b"-", b"[", b"{", b"!!python/object:os.system", b"&a *a", b"\t", b"0", b"e"])) + raw[j:]
     _load(raw)
+
+
+def _reference_load(text: str):
+    """The loader's documents as PyYAML's own constructors build them (SpeciesLoader's
+    resolvers and constructors, without load_yaml's direct node conversion)."""
+    from pipeline.species import SpeciesLoader
+
+    return yaml.load(text, Loader=SpeciesLoader)  # noqa: S506 - safe loader subclass
+
+
+def _outcome(fn, text):
+    import math
+
+    try:
+        value = fn(text)
+    except (yaml.YAMLError, ValueError, KeyError, TypeError) as exc:
+        return ("error", type(exc).__name__)
+    except RecursionError:
+        return ("error", "RecursionError")
+    # NaN != NaN: compare through repr, which also tells 1 from 1.0 and True from 1
+    return ("ok", repr(value).replace("nan", "NaN") if not (isinstance(value, float) and math.isnan(value)) else "NaN")
+
+
+@FUZZ
+@given(st.one_of(documents.map(lambda d: _dump(d).decode()),
+                 st.sampled_from(VALID).flatmap(
+                     lambda t: st.tuples(st.integers(0, len(t)), st.sampled_from(
+                         ["", ": ", "!!float ", "!!int ", "!!bool ", "!!str ", "&a ", "*a ", "- ", "{", "]",
+                          ".inf", "-.NaN", "017", "+3", "1_0", "0x1F", "yes", "~", "\n  ", "<<: "]))
+                     .map(lambda c: t[:c[0]] + c[1] + t[c[0]:]))))
+def test_load_yaml_agrees_with_pyyaml_constructors(text):
+    """load_yaml turns libyaml's nodes into values itself; it must give what PyYAML's
+    constructors give for the same resolvers (or fail where they fail)."""
+    new, ref = _outcome(load_yaml, text), _outcome(_reference_load, text)
+    if new == ("error", "ConstructorError") and ref[0] == "ok":  # a document that contains itself
+        assert "[...]" in ref[1] or "{...}" in ref[1], (text, ref)
+        return
+    assert new == ref
+
+
+def test_load_yaml_refuses_a_document_that_contains_itself():
+    assert _outcome(load_yaml, "a: &x [1, *x]") == ("error", "ConstructorError")
+    assert "[...]" in _outcome(_reference_load, "a: &x [1, *x]")[1]
