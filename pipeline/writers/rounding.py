@@ -269,7 +269,7 @@ def _state(a5: list[float], T: float, targets: dict, v: dict, refix: bool, windo
     return a, x6, x7, ok
 
 
-def _aimed(base: list[float], T: float, targets: dict, span) -> tuple | None:
+def _aimed(base: list[float], T: float, targets: dict, span, start) -> tuple | None:
     """Nudges aimed at the printed grid of a6 (and of a7), tried in pure Python.
 
     A move of k last-digit units of a_j shifts the exact a6 by k·e_j (linear in
@@ -279,7 +279,8 @@ def _aimed(base: list[float], T: float, targets: dict, span) -> tuple | None:
     window.  Rounding a1 after the move leaves a small miss, removed by a
     second move of a fine coefficient with a1 held.  Candidates are tried in
     order of grid distance and Cp/R change over ``span``; every one is checked
-    exactly as printed.
+    exactly as printed, and one that fails the check gives way to the next.
+    ``start`` is :func:`_state` of ``base`` (a1 re-fixed for Cp when Cp is a target).
     """
     cp_fixed = "cp" in targets
     v = _poly_list(T)
@@ -291,7 +292,7 @@ def _aimed(base: list[float], T: float, targets: dict, span) -> tuple | None:
     if not knobs:
         return None
     windows = _windows(targets)
-    a, x6, x7, _ = _state(base, T, targets, v, cp_fixed, windows)
+    a, x6, x7, _ = start
     g6, g7 = last_digit(a[5]) or 1.0, last_digit(a[6]) or 1.0
 
     def effect(q, j, follow):  # change of the exact a6 (q='h') or a7 per unit of a_j
@@ -326,8 +327,8 @@ def _aimed(base: list[float], T: float, targets: dict, span) -> tuple | None:
             tried += 1
             trial = moved(base, j, k)
             a, x6t, x7t, ok = _state(trial, T, targets, v, cp_fixed, windows)
-            if ok:
-                return a if _meets(a, T, targets) else None
+            if ok and _meets(a, T, targets):
+                return a
             a5 = list(a[:5])  # a1 as re-fixed; correct the small miss with a1 held
             sides = {"h": (x6t, g6), "s": (x7t, g7)}
             for j2, q, e2 in fine_effects:
@@ -346,10 +347,11 @@ def _balanced(src, T: float, targets: dict, span, what: str, name: str) -> tuple
     if _meets(plain, T, targets):  # plain rounding is enough (and printed input stays as it is)
         return plain
     base = list(plain[:5])
-    a = _close(base, T, targets)
+    start = _state(base, T, targets, _poly_list(T), "cp" in targets, _windows(targets))
+    a = start[0]  # a6, a7 (and a1 for Cp) re-derived from the rounded a1 … a5, as _close makes them
     if _meets(a, T, targets):
         return a
-    a = _aimed(base, T, targets, span) or _nudged(base, T, targets, span)
+    a = _aimed(base, T, targets, span, start) or _nudged(base, T, targets, span)
     if a is None:
         raise ValueError(f"{name}: no printed coefficients meet {what} (nudges of up to three last digits tried)")
     return a
