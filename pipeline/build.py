@@ -263,7 +263,7 @@ def _apply_flags(species, flags: dict):
 
 
 def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list[dict], list[dict]]:
-    """Compute the cache entries of ``items`` = [(key, display path, bytes)].
+    """Compute the cache entries of ``items`` = [(key, display path, bytes, YAML read ahead or None)].
 
     Returns (entries, error diagnostics as dicts).  The entries are stored in
     the cache (when ``cache_root`` is given) as one pack.
@@ -276,9 +276,9 @@ def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list
     errors: list[Diagnostic] = []
     parsed = []  # (key, disp, species, warnings, settings); loaded adds the table
     glob = settings.replace(**flags)
-    for key, disp, data in items:
+    for key, disp, data, doc in items:
         try:
-            sp, warns = parse_species(data, disp)
+            sp, warns = parse_species(data, disp, doc)
         except InputError as exc:
             errors.extend(exc.diagnostics)
             continue
@@ -381,8 +381,6 @@ def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progres
         return entries, errors
     import multiprocessing
 
-    import jinja2, pipeline.fit, pipeline.species, pipeline.thermo, pipeline.writers  # noqa: F401,E401 (before fork)
-
     ctx = multiprocessing.get_context("fork" if sys.platform != "win32" else "spawn")
     with ctx.Pool(jobs) as pool:
         results = [pool.apply_async(_compute, (chunk, settings, flags, cache_root)) for chunk in chunks]
@@ -412,6 +410,72 @@ class Plan:
     entries: list[dict]
 
 
+#: fewest files worth reading ahead in another process (below that, forking costs more than it saves)
+READ_AHEAD_MIN = 64
+
+
+def _read_ahead(inputs: Inputs, cache: Cache | None, shard=None):
+    """Start reading the YAML of the species files the cache has never seen, in a forked process.
+
+    A cold build spends its first few tenths of a second importing numpy and
+    scipy; with a second CPU, a child that needs only PyYAML
+    (:mod:`pipeline.safeyaml`) reads the files meanwhile.  Returns a function
+    that waits for the child and gives {file sha256: document} (files it could
+    not read are left out: the worker reads them again and reports why), or
+    None when there is nothing worth doing, no second CPU or no fork.
+    """
+    from pipeline.settings import workers
+
+    known = cache.species_hashes() if cache is not None else set()
+    files = [(sha, data) for name, _, data, sha in inputs.files if sha not in known and _in_shard(name, shard)]
+    if len(files) < READ_AHEAD_MIN or workers("auto") < 2 or not hasattr(os, "fork"):
+        return None
+    import multiprocessing
+    import pickle
+
+    ctx = multiprocessing.get_context("fork")
+    receive, send = ctx.Pipe(duplex=False)
+    child = ctx.Process(target=_read_files, args=(files, send), daemon=True)
+    try:
+        child.start()
+    except OSError:
+        return None
+    send.close()
+
+    got: list[dict] = []
+
+    def collect() -> dict:
+        if not got:
+            try:
+                got.append(pickle.loads(receive.recv_bytes()))
+            except (EOFError, OSError, pickle.UnpicklingError):
+                got.append({})  # the child died: the workers read the files themselves
+            finally:
+                receive.close()
+                child.join()
+        return got[0]
+
+    return collect
+
+
+def _read_files(files, conn) -> None:
+    """Child of :func:`_read_ahead`: send {sha256: document} of the files that read cleanly."""
+    import pickle
+
+    from pipeline.safeyaml import load_yaml
+
+    docs = {}
+    for sha, data in files:
+        try:
+            doc = load_yaml(data.decode("utf-8"))
+        except Exception:  # noqa: BLE001 - any failure: the worker reads the file and says why
+            continue
+        if doc is not None:
+            docs[sha] = doc
+    conn.send_bytes(pickle.dumps(docs, protocol=pickle.HIGHEST_PROTOCOL))
+    conn.close()
+
+
 def _in_shard(name: str, shard: tuple[int, int] | None) -> bool:
     if shard is None:
         return True
@@ -421,7 +485,22 @@ def _in_shard(name: str, shard: tuple[int, int] | None) -> bool:
 
 def _plan(inputs: Inputs, out: Path, cache: Cache | None, *, jobs: int | None, shard=None,
           keep_going: bool = False, verbosity: int = 1, progress: bool = False,
-          since_last: bool = False) -> Plan:
+          since_last: bool = False, started: float | None = None) -> Plan:
+    """What the output folder should contain; ``started`` (time.monotonic()) is when the
+    build began, from which the progress bar's one-second delay counts."""
+    from pipeline.settings import load_settings, workers
+
+    ahead = _read_ahead(inputs, cache, shard)
+    try:
+        return _plan_read(inputs, out, cache, ahead, jobs=jobs, shard=shard, keep_going=keep_going,
+                          verbosity=verbosity, progress=progress, since_last=since_last, started=started)
+    finally:
+        if ahead:
+            ahead()  # idempotent: waits for (and reaps) the child if an error came first
+
+
+def _plan_read(inputs: Inputs, out: Path, cache: Cache | None, ahead, *, jobs, shard, keep_going,
+               verbosity, progress, since_last, started) -> Plan:
     from pipeline.settings import load_settings, workers
 
     settings = load_settings(inputs.dir)
@@ -447,10 +526,14 @@ def _plan(inputs: Inputs, out: Path, cache: Cache | None, *, jobs: int | None, s
             entry["warnings"] = [{**d, "file": disp} for d in entry["warnings"]]
             by_file[disp] = entry
         elif _in_shard(name, shard):
-            todo.append((key, disp, data))
+            todo.append((key, disp, data, sha))
     plan.cached = len(by_file)
     plan.computed = len(todo)
-    bar = Progress(len(todo), "statherm build", enabled=verbosity > 0, force=progress)
+    if todo:  # the compute modules load while the files are read (and before any fork)
+        import jinja2, pipeline.fit, pipeline.species, pipeline.thermo, pipeline.writers  # noqa: F401,E401
+    docs = ahead() if ahead else {}
+    todo = [(key, disp, data, docs.get(sha)) for key, disp, data, sha in todo]
+    bar = Progress(len(todo), "statherm build", enabled=verbosity > 0, force=progress, start=started)
     try:
         entries, errors = _compute_all(todo, settings, inputs.flags,
                                        cache.root.as_posix() if cache else None,
@@ -649,7 +732,8 @@ def build(species_dir="species", out_dir="output", *, flags: dict | None = None,
     out = _prepare(out_dir)
     cache = Cache(out)
     if shard is not None:
-        plan = _plan(inputs, out, cache, jobs=jobs, shard=shard, verbosity=verbosity, progress=progress)
+        plan = _plan(inputs, out, cache, jobs=jobs, shard=shard, verbosity=verbosity, progress=progress,
+                     started=t0)
         _emit(plan.errors + plan.warnings, verbosity, as_json)
         if verbosity > 0 and not plan.errors:
             i, n = shard
@@ -672,7 +756,7 @@ def _build_locked(inputs, out, cache, t0, *, jobs, keep_going, verbosity, as_jso
             _note(as_json, f"statherm: {out.as_posix()} is up to date ({len(inputs.files)} species)")
         return EXIT_OK
     plan = _plan(inputs, out, cache, jobs=jobs, keep_going=keep_going, verbosity=verbosity, progress=progress,
-                 since_last=manifest is not None)
+                 since_last=manifest is not None, started=t0)
     if plan.errors and not keep_going:
         _emit(plan.errors + plan.warnings, verbosity, as_json)
         files = len({d.file for d in plan.errors})

@@ -244,6 +244,11 @@ class Cache:
             return None
         return dict(entry)
 
+    def species_hashes(self) -> set[str]:
+        """sha256 of every species file some entry was computed from."""
+        return {e.get("sha256") for entries in self._packs().values() for e in entries.values()
+                if isinstance(e, dict)}
+
     def store_entries(self, items: list[tuple[dict, dict[str, bytes]]]) -> None:
         """Store species' entries as one pack; each item is (entry, binary files).
 
@@ -440,12 +445,13 @@ class Progress:
     ``force=True`` shows it in logs too (plain lines instead of a redrawn bar).
     """
 
-    def __init__(self, total: int, label: str, *, enabled: bool, force: bool = False, delay: float = 1.0):
+    def __init__(self, total: int, label: str, *, enabled: bool, force: bool = False, delay: float = 1.0,
+                 start: float | None = None):
         self.total = max(total, 1)
         self.label = label
         self.tty = sys.stderr.isatty()
         self.enabled = enabled and (self.tty or force)
-        self.start = time.monotonic()
+        self.start = time.monotonic() if start is None else start  # the delay counts from here
         self.delay = 0.0 if force else delay
         self.shown = False
         self.last = -1

@@ -85,24 +85,49 @@ def test_rebuild_after_deleting_the_cache_gives_the_same_bytes_and_keeps_mtimes(
     assert snapshot(out) == before
 
 
-def test_jobs_and_shards_give_the_same_bytes(tmp_path):
+def test_jobs_shards_and_reading_ahead_give_the_same_bytes(tmp_path, monkeypatch):
+    import pipeline.build as b
     from pipeline.bench import synthesise
 
+    monkeypatch.setattr(b, "READ_AHEAD_MIN", 16)  # so that each shard reads ahead too
+    n = 80  # enough species for two worker processes
     species = tmp_path / "species"
-    synthesise(24, species)  # enough species for two worker processes
+    synthesise(n, species)
     results = {}
-    for name, runs in (("serial", [[]]), ("jobs", [["--jobs", "2"]]),
-                       ("shards", [["--shard", "1/2"], ["--shard", "2/2"], []])):
+    read = []
+    real = b._read_ahead
+    monkeypatch.setattr(b, "_read_ahead", lambda *a: read.append(real(*a)) or read[-1])
+    for name, runs in (("serial", [["--jobs", "1"]]), ("jobs", [["--jobs", "2"]]),
+                       ("shards", [["--shard", "1/2"], ["--shard", "2/2"], []]), ("no-read-ahead", [[]])):
+        if name == "no-read-ahead":
+            monkeypatch.setattr(b, "READ_AHEAD_MIN", 10**9)
         dest = tmp_path / name
         for extra in runs:
             rc, _, err = run("build", "--species", str(species), "--out", str(dest), "--verbose", *extra)
             assert rc == 0, err
         if name == "shards":
-            assert "(0 computed, 24 cached)" in err  # the final build only assembles what the shards cached
+            assert f"(0 computed, {n} cached)" in err  # the final build only assembles what the shards cached
         results[name] = {rel: b for rel, (b, _) in snapshot(dest).items()}
-    assert len(results["serial"]) > 24
-    assert results["jobs"] == results["serial"]
-    assert results["shards"] == results["serial"]
+    if len(os.sched_getaffinity(0)) > 1:  # read ahead in the cold builds (and the shards), not when all is cached
+        assert [r is not None for r in read] == [True, True, True, True, False, False]
+    assert len(results["serial"]) > n
+    for name in ("jobs", "shards", "no-read-ahead"):
+        assert results[name] == results["serial"], name
+
+
+def test_reading_ahead_leaves_bad_files_to_be_reported(tmp_path):
+    import pipeline.build as b
+    from pipeline.bench import synthesise
+
+    species = tmp_path / "species"
+    synthesise(b.READ_AHEAD_MIN + 4, species)
+    (species / "zz-syntax.yaml").write_text("name: ZZ\nformula: {H: 2\n", encoding="utf-8")
+    (species / "zz-bytes.yaml").write_bytes(b"name: Z\xff\n")
+    rc, _, err = run("build", "--species", str(species), "--out", str(tmp_path / "out"))
+    assert rc == 1
+    assert "zz-syntax.yaml: line 3, column 1: YAML syntax error" in err
+    assert "zz-bytes.yaml: is not UTF-8 text" in err
+    assert "Traceback" not in err
 
 
 def test_shard_writes_no_output(tmp_path):
