@@ -47,9 +47,10 @@ class Settings:
 
     @property
     def pressure_pa(self) -> float:
-        from scipy import constants as C  # lazy: a no-op rebuild must not import scipy
+        """The standard pressure [Pa]."""
+        from pipeline.units import PRESSURE  # lazy: a no-op rebuild must not import scipy
 
-        return {"bar": C.bar, "atm": C.atm}[self.pressure]
+        return PRESSURE[self.pressure]
 
     def replace(self, **changes: Any) -> "Settings":
         return dataclasses.replace(self, **{k: v for k, v in changes.items() if v is not None})
