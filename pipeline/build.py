@@ -354,9 +354,11 @@ def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list
         entries.append(entry)
     if cache is not None:
         try:
-            cache.store_entries([(e, e["_extra"]) for e in entries])
+            pack = cache.store_entries([(e, e["_extra"]) for e in entries])
         except OSError:
-            pass  # a cache that cannot be written only costs time
+            pack = None  # a cache that cannot be written only costs time
+        for e in entries:
+            e["_pack"] = pack
     return entries, [d.as_dict() for d in errors]
 
 
@@ -408,6 +410,7 @@ class Plan:
     cached: int
     manifest: dict
     entries: list[dict]
+    fresh_packs: set[str]  # cache packs this build wrote (all their entries live)
 
 
 #: fewest files worth reading ahead in another process (below that, forking costs more than it saves)
@@ -541,6 +544,7 @@ def _plan_read(inputs: Inputs, out: Path, cache: Cache | None, ahead, *, jobs, s
     finally:
         bar.close()
     plan.errors = [Diagnostic(**d) for d in errors]
+    plan.fresh_packs = {e.pop("_pack", None) for e in entries} - {None}
     for e in entries:
         by_file[e["file"]] = e
         if verbosity > 1:
@@ -766,7 +770,7 @@ def _build_locked(inputs, out, cache, t0, *, jobs, keep_going, verbosity, as_jso
     writes, deletes = _changes(out, plan.files, manifest)
     cache.commit(writes, deletes, plan.manifest)
     cache.prune(set(plan.manifest["entries"].values()),
-                {sha for e in plan.entries for sha in e.get("files", {}).values()})
+                {sha for e in plan.entries for sha in e.get("files", {}).values()}, plan.fresh_packs)
     _emit(plan.errors + plan.warnings, verbosity, as_json)
     if verbosity > 0 and (writes or deletes or plan.computed or verbosity > 1):
         dt = time.monotonic() - t0

@@ -226,11 +226,18 @@ class Cache:
             except OSError:
                 names = []
             for name in names:
-                data = read_json(folder / name) if name.startswith("pack-") else None
-                if isinstance(data, dict) and data.get("format") == FORMAT and isinstance(data.get("entries"), dict):
-                    packs[name] = data["entries"]
+                entries = self._read_pack(name)
+                if entries is not None:
+                    packs[name] = entries
             self._pack_cache = packs
         return self._pack_cache
+
+    def _read_pack(self, name: str) -> dict | None:
+        """A pack's entries, or None if ``name`` is not a readable pack of this format."""
+        data = read_json(self.root / "entries" / name) if name.startswith("pack-") else None
+        if isinstance(data, dict) and data.get("format") == FORMAT and isinstance(data.get("entries"), dict):
+            return data["entries"]
+        return None
 
     def load_entry(self, key: str) -> dict | None:
         for entries in self._packs().values():
@@ -249,8 +256,9 @@ class Cache:
         return {e.get("sha256") for entries in self._packs().values() for e in entries.values()
                 if isinstance(e, dict)}
 
-    def store_entries(self, items: list[tuple[dict, dict[str, bytes]]]) -> None:
-        """Store species' entries as one pack; each item is (entry, binary files).
+    def store_entries(self, items: list[tuple[dict, dict[str, bytes]]]) -> str | None:
+        """Store species' entries as one pack; each item is (entry, binary files).  Returns
+        the pack's file name (None when there was nothing to store).
 
         Binary files (output path → bytes, e.g. plots) go to ``blobs/`` under
         their sha256; the entry keeps the references.
@@ -269,8 +277,8 @@ class Cache:
             entry["files"] = refs
             entries[entry["key"]] = entry
         if not entries:
-            return
-        self._write_pack(entries)
+            return None
+        return self._write_pack(entries)
 
     def _write_pack(self, entries: dict[str, dict]) -> str:
         data = dump_json({"format": FORMAT, "entries": entries})
@@ -283,25 +291,35 @@ class Cache:
     def blob(self, sha: str) -> bytes:
         return (self.root / "blobs" / sha).read_bytes()
 
-    def prune(self, keep_entries: set[str], keep_blobs: set[str]) -> None:
+    def prune(self, keep_entries: set[str], keep_blobs: set[str], fresh: set[str] = frozenset()) -> None:
         """Forget entries and blobs no current species refers to.
 
         A pack with no live entry is deleted; packs with more than
         :data:`PACK_DEAD_SHARE` dead entries (all packs, when there are more
         than :data:`MAX_PACKS`) are merged into one new pack of their live
         entries, written before the old ones are deleted, so a kill in between
-        only leaves duplicates.
+        only leaves duplicates.  ``fresh`` names packs just written with live
+        entries only (this build's): they are not read again.
         """
-        self._pack_cache = None
-        packs = self._packs()
+        known = self._packs()  # as read at the start of the build: the packs of earlier builds
         folder = self.root / "entries"
         try:
             present = os.listdir(folder)
         except OSError:
             present = []
-        drop = [name for name in present if name not in packs]  # damaged, foreign or old-format files
+        packs, drop = {}, []
+        for name in present:
+            if name in fresh:
+                continue
+            entries = known.get(name)
+            if entries is None:  # written since (e.g. by a shard), or not a pack
+                entries = self._read_pack(name)
+                if entries is None:
+                    drop.append(name)  # damaged, foreign or old-format files
+                    continue
+            packs[name] = entries
         merge: dict[str, dict] = {}
-        crowded = len(packs) > MAX_PACKS
+        crowded = len(packs) + len(fresh) > MAX_PACKS
         for name, entries in packs.items():
             live = {k: e for k, e in entries.items() if k in keep_entries}
             if not live:
@@ -356,13 +374,14 @@ class Cache:
         the manifest to store once the files are in place.  Output stats for
         the written files are filled into ``manifest["outputs"]`` here.
         """
-        tmpdir = self.root / "tmp"
+        tmpdir = os.path.join(self.root, "tmp")
         moves = []
+        pid = os.getpid()
         for i, (rel, data) in enumerate(sorted(writes.items())):
-            tmp = tmpdir / f"{os.getpid()}-{i}"
-            with open(tmp, "wb") as fh:
+            name = f"{pid}-{i}"
+            with open(os.path.join(tmpdir, name), "wb") as fh:
                 fh.write(data)
-            moves.append([tmp.name, rel])
+            moves.append([name, rel])
             if i == len(writes) // 2:
                 fault("writing-temporaries")
         journal = {"format": FORMAT, "moves": moves, "deletes": sorted(deletes), "manifest": manifest}
@@ -372,14 +391,18 @@ class Cache:
         self._apply(journal)
 
     def _apply(self, journal: dict) -> None:
-        tmpdir = self.root / "tmp"
+        tmpdir, out = os.path.join(self.root, "tmp"), os.fspath(self.out)
         half = len(journal["moves"]) // 2
+        made: set[str] = set()
         for i, (tmp, rel) in enumerate(journal["moves"]):
-            src = tmpdir / tmp
-            dest = self.out / rel
-            if src.exists():
-                dest.parent.mkdir(parents=True, exist_ok=True)
-                os.replace(src, dest)
+            parent = rel.rpartition("/")[0]
+            if parent not in made:
+                os.makedirs(os.path.join(out, parent), exist_ok=True)
+                made.add(parent)
+            try:
+                os.replace(os.path.join(tmpdir, tmp), os.path.join(out, rel))
+            except FileNotFoundError:
+                pass  # moved already (a recovery replaying the journal)
             if i == half:
                 fault("moving")
         for rel in journal["deletes"]:
@@ -397,7 +420,7 @@ class Cache:
         manifest = journal["manifest"]
         outputs = manifest.setdefault("outputs", {})
         for rel in list(outputs):
-            st = _stat(self.out / rel)
+            st = _stat(os.path.join(out, rel))
             if st is None:
                 del outputs[rel]
             else:
