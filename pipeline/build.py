@@ -362,6 +362,31 @@ def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list
     return entries, [d.as_dict() for d in errors]
 
 
+#: fewest species in a chunk (the fit is batched across a chunk's species)
+CHUNK_MIN = 25
+
+
+def _chunks(todo: list, jobs: int) -> list[list]:
+    """``todo`` cut into chunks: tenths for one process (progress), and for several ever
+    smaller ones — each a 1/(2·jobs) share of what is left — so the workers finish together.
+
+    >>> [len(c) for c in _chunks(list(range(1000)), 2)]
+    [250, 188, 141, 106, 79, 59, 45, 33, 25, 25, 25, 24]
+    >>> [len(c) for c in _chunks(list(range(1000)), 1)]
+    [100, 100, 100, 100, 100, 100, 100, 100, 100, 100]
+    """
+    n = len(todo)
+    if jobs == 1:
+        size = max(CHUNK_MIN, -(-n // 10))
+        return [todo[i: i + size] for i in range(0, n, size)]
+    chunks, i = [], 0
+    while i < n:
+        size = max(CHUNK_MIN, -(-(n - i) // (2 * jobs)))
+        chunks.append(todo[i: i + size])
+        i += size
+    return chunks
+
+
 def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progress):
     """Run :func:`_compute` over ``todo`` in ``jobs`` processes, in chunks (for the progress bar)."""
     entries: list[dict] = []
@@ -370,8 +395,7 @@ def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progres
         return entries, errors
     n = len(todo)
     jobs = max(1, min(jobs, n // 8 or 1))
-    size = max(25, -(-n // (jobs * 4)) if jobs > 1 else -(-n // 10))
-    chunks = [todo[i: i + size] for i in range(0, n, size)]
+    chunks = _chunks(todo, jobs)
     done = 0
     if jobs == 1:
         for chunk in chunks:
