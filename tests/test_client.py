@@ -10,9 +10,11 @@ Smith, Golden, Frenklach et al., GRI-Mech 3.0, 1999).
 
 from __future__ import annotations
 
+import atexit
 import contextlib
 import functools
 import io
+import shutil
 import tempfile
 import warnings
 from pathlib import Path
@@ -52,6 +54,7 @@ def bundled_database() -> tuple[Path, bytes]:
     ion = {f.name: f for f in cantera_fits("nasa_gas.yaml")}["NO+"]
     text = data.decode().replace("END\n", record_text(ion) + "END\n")
     folder = Path(tempfile.mkdtemp(prefix="statherm-client-"))
+    atexit.register(shutil.rmtree, folder, True)  # kept for the session's tests, gone after
     (folder / "thermo.dat").write_text(text, encoding="utf-8")
     return folder, text.encode()
 
