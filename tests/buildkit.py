@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import atexit
 import contextlib
 import functools
 import io
@@ -53,6 +54,7 @@ def snapshot(folder: Path) -> dict[str, tuple[bytes, int]]:
 def _template() -> Path:
     """A database of the SMALL species, built once per test session (output and cache)."""
     root = Path(tempfile.mkdtemp(prefix="statherm-test-"))
+    atexit.register(shutil.rmtree, root, True)  # kept for the session's tests, gone after
     (root / "species").mkdir()
     for name in SMALL:
         shutil.copy2(SPECIES_DIR / f"{name}.yaml", root / "species" / f"{name}.yaml")
