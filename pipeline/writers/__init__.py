@@ -35,10 +35,15 @@ from __future__ import annotations
 
 import dataclasses
 import functools
+import os
 from pathlib import PurePath
 
 import numpy as np
+from scipy import constants as C
 
+from pipeline import __version__
+from pipeline.thermo import T_REF
+from pipeline.writers import formats
 from pipeline.writers.rounding import printed_fit
 
 __all__ = ["species_fragments", "assemble", "printed_fit", "record_text", "record_elements", "FORMAT_VERSION", "table_path"]
@@ -94,12 +99,19 @@ def identifier(sha256: str) -> str:
 
 
 # --------------------------------------------------------------------------
-# One species
+# One species, and many at once
 # --------------------------------------------------------------------------
+
+#: species whose arrays are worked on together (keeps the temporaries to a few MB)
+CHUNK = 64
 
 
 def species_fragments(species, table, fit, settings) -> dict[str, str]:
     """Render everything ``species`` contributes to the database (keys: module docstring).
+
+    The one-species case of :func:`batch_fragments` (the same bytes); raises
+    ValueError if the species cannot be written (e.g. a record that does not
+    fit its columns).
 
     Parameters
     ----------
@@ -111,140 +123,242 @@ def species_fragments(species, table, fit, settings) -> dict[str, str]:
     settings : Settings
         The build settings (the species file's ``fit:`` overrides are applied here).
     """
-    from pipeline import __version__
-    from pipeline.writers.formats import render
-
-    s = settings.for_species(species)
-    pressure = s.pressure_pa
-    formula, charge = tuple(species.formula), int(species.charge)
-    if (fit.name, fit.formula, fit.charge) != (species.name, formula, charge):
-        fit = dataclasses.replace(fit, name=species.name, formula=formula, charge=charge)
-    printed = printed_fit(fit)
-    quality = fit.quality.as_dict() if hasattr(fit.quality, "as_dict") else {}
-    elements = record_elements(species.formula, species.charge)
-    record = _record(printed, identifier(species.sha256) if species.sha256 else "")
-
-    # the printed polynomials at the table temperatures, over the fit grid, at 298.15 K and on both sides of Tmid
-    T, cp, sm, dh, gfn = _at_table_step(species, table, _table_grid(s.tmin, s.tmax, s.table_step), pressure)
-    Tf = np.asarray(table.T, dtype=float)
-    inside = (Tf >= printed.tlow) & (Tf <= printed.thigh)
-    inside = slice(None) if inside.all() else inside  # the usual case: no copies
-    Tf = Tf[inside]
-    v = _printed_values(printed, (T, Tf))
-    (cp_f, cpf_grid), (h_t, hf_grid), (s_f, sf_grid) = v["cp"], v["h"], v["s"]
-    h298 = v["h298"]
-    u = _uncertainty(species, T, pressure)
-
-    # property table at the table step, with the printed polynomials beside it
-    dh_f = h_t - h298
-    gfn_f = s_f - dh_f / T
-    columns = [
-        ("T [K]", T, ".2f"),
-        ("Cp [J/mol/K]", cp, ".6f"), ("S [J/mol/K]", sm, ".6f"),
-        ("H-H298 [kJ/mol]", dh / 1e3, ".6f"), ("-(G-H298)/T [J/mol/K]", gfn, ".6f"),
-        ("Cp fit [J/mol/K]", cp_f, ".6f"), ("S fit [J/mol/K]", s_f, ".6f"),
-        ("H-H298 fit [kJ/mol]", dh_f / 1e3, ".6f"), ("-(G-H298)/T fit [J/mol/K]", gfn_f, ".6f"),
-        ("Cp residual [J/mol/K]", cp_f - cp, ".6f"), ("S residual [J/mol/K]", s_f - sm, ".6f"),
-        ("H-H298 residual [kJ/mol]", (dh_f - dh) / 1e3, ".6f"),
-        ("-(G-H298)/T residual [J/mol/K]", gfn_f - gfn, ".6f"),
-    ]
-    if u is not None:
-        from pipeline.uncertainty import table_columns
-
-        columns += [(head, values, ".6f") for head, values in table_columns(u, T).items()]
-    values = np.empty((len(T), len(columns)))
-    for j, c in enumerate(columns):
-        values[:, j] = c[1]
-    table_csv = render("table.csv.j2", header=[c[0] for c in columns], values=values,
-                       formats=[c[2] for c in columns])
-
-    # thermo.yaml entry
-    uncertainty = None
-    report_u = None
-    if u is not None:
-        from pipeline.uncertainty import exceeds, report_values, structured
-
-        uncertainty = structured(u, [t for t in U_BAND_T if s.tmin <= t <= s.tmax])
-        report_u = report_values(u)
-    entry = render(
-        "species.yaml.j2", name=species.name, composition={el: n for el, n in species.formula},
-        charge=int(species.charge), phase=fit.phase, molar_mass=float(species.molar_mass), tmid=float(fit.tmid),
-        ranges=[
-            {"tmin": float(fit.tlow), "tmax": float(fit.tmid), "coefficients": [float(a) for a in fit.low]},
-            {"tmin": float(fit.tmid), "tmax": float(fit.thigh), "coefficients": [float(a) for a in fit.high]},
-        ],
-        reference_state={
-            "dhf298": float(table.dhf298), "s298": float(table.s298), "cp298": float(table.cp298),
-            "h298_minus_h0": float(table.h298_minus_h0),
-        },
-        quality=quality, uncertainty=uncertainty, sources=list(species.sources),
-        species_file=PurePath(species.path).name if species.path else "", sha256=species.sha256,
-        version=__version__, model=_model_key(s), pressure_pa=float(pressure),
-    )
-
-    # REPORT.md row, errors of the printed polynomials over the fit grid
-    cp_t, h_t, s_t = table.cp[inside], table.h[inside], table.s[inside]
-    cp_err = np.abs(cpf_grid - cp_t) / np.abs(cp_t)
-    h_err = np.abs(hf_grid - h_t)
-    s_err = np.abs(sf_grid - s_t)
-    warnings = list(quality.get("warnings", []))
-    note = ""
-    if report_u is not None and exceeds(report_u, s.g_uncertainty_warning):
-        warnings.append(f"u(G°, 1000 K) = {report_u['g1000']:.2f} kJ/mol")
-        dominant = f" (largest contribution: `{report_u['dominant']}`)" if report_u["dominant"] else ""
-        note = f"- `{species.name}`: {report_u['g1000']:.2f} kJ/mol{dominant}\n"
-    plot = ""
-    if s.plots:
-        from pipeline.plots import PLOTS_DIR, available, plot_file_name
-
-        if available():  # without matplotlib the build writes no plots: link none
-            plot = f"[plot](<{PLOTS_DIR}/{plot_file_name(species.name)}>)"
-    row = render(
-        "report_row.md.j2", name=species.name, formula=" ".join(f"{el}{n}" for el, n in elements),
-        dhf298=table.dhf298 / 1e3, s298=table.s298, cp298=table.cp298, tmid=printed.tmid,
-        tmid_auto=bool(quality.get("tmid_auto", False)),
-        cp_error=float(cp_err.max()) if len(Tf) else None, h_error=float(h_err.max()) if len(Tf) else None,
-        s_error=float(s_err.max()) if len(Tf) else None, continuity=v["continuity"],
-        u_g298=report_u["g298"] if report_u else None, u_g1000=report_u["g1000"] if report_u else None,
-        plot=plot, warnings="; ".join(w.replace("|", "/") for w in warnings),
-    )
-    return {"name": species.name, "record": record, "yaml": entry, "report_row": row,
-            "report_note": note, "table_csv": table_csv}
+    (fragments,) = batch_fragments([(species, table, fit, settings)])
+    if isinstance(fragments, ValueError):
+        raise fragments
+    return fragments
 
 
-def _printed_values(p, temperatures) -> dict:
-    """Cp, H, S [SI] of the printed fit ``p`` on each array of ``temperatures``, H at
-    298.15 K, and the largest relative jump of Cp/R, H/RT, S/R at Tmid — in one pass.
+def batch_fragments(items) -> list:
+    """:func:`species_fragments` of each ``(species, table, fit, settings)`` of ``items``, in order.
 
-    The numbers are those of :class:`pipeline.nasa7.Nasa7Fit`'s ``cp``, ``h``, ``s``
-    and ``max(continuity().values())``, bit for bit: the same functions of
-    :mod:`pipeline.nasa7` evaluated once over every point, each point with
-    the coefficients of its own range (Tmid belongs to the low range).
+    The fragments are byte for byte those of one call per species; the array
+    work (the printed polynomials over every fit grid, the property tables
+    and their formatting, the errors) is done for :data:`CHUNK` species at a
+    time instead of species by species.  A species that cannot be written
+    gets its ValueError in place of its fragments; the others are still made.
     """
-    from scipy import constants as C
-
-    from pipeline.nasa7 import cp_r, h_rt, s_r
-    from pipeline.thermo import T_REF
-
-    parts = [np.asarray(t, dtype=float) for t in temperatures]
-    sizes = [len(t) for t in parts]
-    T = np.concatenate(parts + [np.array([T_REF, p.tmid, p.tmid])])
-    high = T > p.tmid
-    high[-2:] = (False, True)  # Tmid in the low range, then in the high range
-    a = np.where(high[:, None], np.array(p.high, dtype=float), np.array(p.low, dtype=float)).T.copy()
-    dimensionless = {"cp": cp_r(a, T), "h": h_rt(a, T), "s": s_r(a, T)}
-    si = {"cp": C.R * dimensionless["cp"], "h": C.R * T * dimensionless["h"], "s": C.R * dimensionless["s"]}
-    bounds = [0]
-    for n in sizes:
-        bounds.append(bounds[-1] + n)
-    out = {q: [values[i:j] for i, j in zip(bounds[:-1], bounds[1:])] for q, values in si.items()}
-    out["h298"] = float(si["h"][-3])
-    jumps = []
-    for values in dimensionless.values():  # Nasa7Fit.continuity()
-        lo, hi = float(values[-2]), float(values[-1])
-        jumps.append(abs(hi - lo) / max(abs(lo), 1.0))
-    out["continuity"] = max(jumps)
+    out: list = []
+    for start in range(0, len(items), CHUNK):
+        chunk = items[start:start + CHUNK]
+        results: list = [None] * len(chunk)
+        ready = []
+        for k, (species, table, fit, settings) in enumerate(chunk):
+            try:
+                ready.append((k, _Species(species, table, fit, settings)))
+            except ValueError as exc:
+                results[k] = exc
+        if ready:
+            _evaluate([sp for _, sp in ready])
+        for k, sp in ready:
+            try:
+                results[k] = sp.fragments()
+            except ValueError as exc:
+                results[k] = exc
+        out += results
     return out
+
+
+class _Species:
+    """One species on its way to its fragments: what is made species by species
+    (printed fit, record, settings, the rows of its table at the table step), then,
+    after :func:`_evaluate` has set ``table_csv``, ``errors`` and ``continuity``,
+    :meth:`fragments`."""
+
+    def __init__(self, species, table, fit, settings):
+        s = self.settings = _for_species(settings, species)
+        self.pressure = s.pressure_pa
+        formula, charge = tuple(species.formula), int(species.charge)
+        if (fit.name, fit.formula, fit.charge) != (species.name, formula, charge):
+            fit = dataclasses.replace(fit, name=species.name, formula=formula, charge=charge)
+        self.species, self.table, self.fit = species, table, fit
+        self.printed = printed_fit(fit)
+        self.quality = fit.quality.as_dict() if hasattr(fit.quality, "as_dict") else {}
+        self.record = _record(self.printed, identifier(species.sha256) if species.sha256 else "")
+        self.grid = grid = _table_grid(s.tmin, s.tmax, s.table_step)
+        # the table step is rows of the fit-grid table when it holds every grid temperature
+        # (the usual case: 10 K grid, 100 K table step), else the species is computed on it
+        T = np.asarray(table.T, dtype=float)
+        idx = np.searchsorted(T, grid)
+        if table.pressure == self.pressure and idx.max(initial=-1) < len(T) and np.array_equal(T[idx], grid):
+            self.rows, self.at_step = idx, None
+        else:
+            from pipeline.thermo import thermo_table
+
+            self.rows, self.at_step = None, thermo_table(species, grid, self.pressure)
+        self.u = _uncertainty(species, grid, self.pressure)
+        self.extra = {}
+        if self.u is not None:
+            from pipeline.uncertainty import table_columns
+
+            self.extra = table_columns(self.u, grid)
+        self.table_csv = self.errors = self.continuity = None
+
+    def fragments(self) -> dict[str, str]:
+        species, table, fit, printed, s, quality = self.species, self.table, self.fit, self.printed, self.settings, \
+            self.quality
+        uncertainty = report_u = None
+        if self.u is not None:
+            from pipeline.uncertainty import report_values, structured
+
+            uncertainty = structured(self.u, [t for t in U_BAND_T if s.tmin <= t <= s.tmax])
+            report_u = report_values(self.u)
+        entry = formats.species_entry(
+            name=species.name, composition={el: n for el, n in species.formula},
+            charge=int(species.charge), phase=fit.phase, molar_mass=float(species.molar_mass), tmid=float(fit.tmid),
+            ranges=[
+                {"tmin": float(fit.tlow), "tmax": float(fit.tmid), "coefficients": [float(a) for a in fit.low]},
+                {"tmin": float(fit.tmid), "tmax": float(fit.thigh), "coefficients": [float(a) for a in fit.high]},
+            ],
+            reference_state={
+                "dhf298": float(table.dhf298), "s298": float(table.s298), "cp298": float(table.cp298),
+                "h298_minus_h0": float(table.h298_minus_h0),
+            },
+            quality=quality, uncertainty=uncertainty, sources=list(species.sources),
+            species_file=_file_name(species.path) if species.path else "", sha256=species.sha256,
+            version=__version__, model=_model_key(s), pressure_pa=float(self.pressure),
+        )
+        warnings = list(quality.get("warnings", []))
+        note = ""
+        if report_u is not None:
+            from pipeline.uncertainty import exceeds
+
+            if exceeds(report_u, s.g_uncertainty_warning):
+                warnings.append(f"u(G°, 1000 K) = {report_u['g1000']:.2f} kJ/mol")
+                dominant = f" (largest contribution: `{report_u['dominant']}`)" if report_u["dominant"] else ""
+                note = f"- `{species.name}`: {report_u['g1000']:.2f} kJ/mol{dominant}\n"
+        plot = ""
+        if s.plots:
+            from pipeline.plots import PLOTS_DIR, available, plot_file_name
+
+            if available():  # without matplotlib the build writes no plots: link none
+                plot = f"[plot](<{PLOTS_DIR}/{plot_file_name(species.name)}>)"
+        cp_error, h_error, s_error = self.errors
+        row = formats.report_row(
+            name=species.name,
+            formula=" ".join(f"{el}{n}" for el, n in record_elements(species.formula, species.charge)),
+            dhf298=table.dhf298 / 1e3, s298=table.s298, cp298=table.cp298, tmid=printed.tmid,
+            tmid_auto=bool(quality.get("tmid_auto", False)), cp_error=cp_error, h_error=h_error, s_error=s_error,
+            continuity=self.continuity, u_g298=report_u["g298"] if report_u else None,
+            u_g1000=report_u["g1000"] if report_u else None,
+            plot=plot, warnings="; ".join(w.replace("|", "/") for w in warnings),
+        )
+        return {"name": species.name, "record": self.record, "yaml": entry, "report_row": row,
+                "report_note": note, "table_csv": self.table_csv}
+
+
+#: the columns of tables/NAME.csv before any uncertainty columns: table, printed fit, fit − table
+_TABLE_COLUMNS = (
+    "T [K]", "Cp [J/mol/K]", "S [J/mol/K]", "H-H298 [kJ/mol]", "-(G-H298)/T [J/mol/K]",
+    "Cp fit [J/mol/K]", "S fit [J/mol/K]", "H-H298 fit [kJ/mol]", "-(G-H298)/T fit [J/mol/K]",
+    "Cp residual [J/mol/K]", "S residual [J/mol/K]", "H-H298 residual [kJ/mol]", "-(G-H298)/T residual [J/mol/K]",
+)
+_NO_VALUES = np.zeros(3)
+
+
+@functools.lru_cache(maxsize=8)
+def _table_formats(columns: int) -> tuple:
+    """Cell formats of a table of ``columns`` columns: T with two decimals, the rest with six."""
+    return (".2f",) + (".6f",) * (columns - 1)
+
+
+def _evaluate(group: list) -> None:
+    """The printed polynomials of every species of ``group`` over its fit grid, its
+    table temperatures, 298.15 K and both sides of Tmid, in one pass; from them each
+    species' ``table_csv``, ``errors`` (max |ΔCp|/Cp, |ΔH|, |ΔS| over the fit grid
+    within its range, None for an empty one) and ``continuity`` (the largest
+    relative jump of Cp/R, H/RT, S/R at Tmid).
+
+    The values are those of :class:`pipeline.nasa7.Nasa7Fit`'s ``cp``, ``h``, ``s``
+    and ``max(continuity().values())``, bit for bit: the same functions of
+    :mod:`pipeline.nasa7`, elementwise, each point with the coefficients of its
+    own range (Tmid belongs to the low range).
+
+    The points of a species are its fit grid, then (only if its table step is not
+    rows of it) its table temperatures, then 298.15 K, Tmid, Tmid; the table data
+    are laid out alike, so one index serves both.
+    """
+    from pipeline.nasa7 import cp_r, h_rt, s_r
+
+    n = len(group)
+    tmids = np.array([sp.printed.tmid for sp in group])
+    tail = np.empty((n, 3))
+    tail[:, 0], tail[:, 1], tail[:, 2] = T_REF, tmids, tmids
+    pieces = {f: [] for f in ("T", "cp", "s", "h_minus_h298", "g_fn", "h")}
+    sizes, grid_sizes, steps = [], [], []
+    at = 0
+    for i, sp in enumerate(group):
+        nf = len(sp.table.T)
+        extra = 0 if sp.at_step is None else len(sp.grid)
+        for f, parts in pieces.items():
+            parts.append(getattr(sp.table, f))
+            if extra:
+                parts.append(getattr(sp.at_step, f))
+            parts.append(tail[i] if f == "T" else _NO_VALUES)
+        sizes.append(nf + extra + 3)
+        grid_sizes += (nf, extra + 3)
+        steps.append(sp.rows + at if extra == 0 else np.arange(at + nf, at + nf + extra))
+        at += sizes[-1]
+    T = np.concatenate(pieces["T"])
+    ends = np.cumsum(sizes)
+    # coefficients point by point: 2i + 1 (high range) above Tmid, 2i (low range) else
+    high = T > np.repeat(tmids, sizes)
+    high[ends - 2] = False  # Tmid in the low range, then in the high range
+    high[ends - 1] = True
+    ranges = np.empty((7, 2 * n))
+    ranges[:, 0::2] = np.array([sp.printed.low for sp in group], dtype=float).T
+    ranges[:, 1::2] = np.array([sp.printed.high for sp in group], dtype=float).T
+    a = ranges.take(np.repeat(2 * np.arange(n), sizes) + high, axis=1)
+    cp_n, h_n, s_n = cp_r(a, T), h_rt(a, T), s_r(a, T)
+    jumps = [np.abs(x[ends - 1] - x[ends - 2]) / np.maximum(np.abs(x[ends - 2]), 1.0) for x in (cp_n, h_n, s_n)]
+    continuity = np.maximum(np.maximum(jumps[0], jumps[1]), jumps[2])  # Nasa7Fit.continuity()
+    cp, h, s = C.R * cp_n, C.R * T * h_n, C.R * s_n
+    h298 = h[ends - 3]
+
+    # the property tables: rows of X are the columns (table, printed fit, fit − table)
+    counts = [len(sp.grid) for sp in group]
+    rows = np.concatenate(steps)
+    data = {f: np.concatenate(parts) for f, parts in pieces.items() if f != "T"}
+    X = np.empty((len(_TABLE_COLUMNS), len(rows)))
+    X[0], X[1], X[2], X[3], X[4] = T[rows], data["cp"][rows], data["s"][rows], data["h_minus_h298"][rows], \
+        data["g_fn"][rows]
+    X[5], X[6] = cp[rows], s[rows]
+    np.subtract(h[rows], np.repeat(h298, counts), out=X[7])  # H − H298 of the fit [J/mol]
+    np.subtract(X[6], np.divide(X[7], X[0], out=X[8]), out=X[8])  # −(G − H298)/T = S − (H − H298)/T
+    np.subtract(X[5:9], X[1:5], out=X[9:13])  # residuals, fit − table
+    X[3:13:4] /= 1e3  # the H − H298 columns in kJ/mol
+    tables: dict = {}  # species by their uncertainty columns (most often none)
+    for i, sp in enumerate(group):
+        tables.setdefault(tuple(sp.extra), []).append(i)
+    first = np.cumsum(counts) - counts
+    for extra, members in tables.items():
+        if len(tables) == 1 and not extra:
+            values = X
+        else:
+            cols = np.concatenate([np.arange(first[i], first[i] + counts[i]) for i in members])
+            values = np.concatenate([X[:, cols]] + [[np.concatenate([group[i].extra[c] for i in members])]
+                                                   for c in extra])
+        texts = formats.csv_tables(_TABLE_COLUMNS + extra, values.T, _table_formats(len(values)),
+                                   [counts[i] for i in members])
+        for i, text in zip(members, texts):
+            group[i].table_csv = text
+
+    # errors of the printed polynomials over each fit grid, within the printed range
+    inside = (np.repeat(np.tile((True, False), n), grid_sizes) & (T >= np.repeat([sp.printed.tlow for sp in group], sizes))
+              & (T <= np.repeat([sp.printed.thigh for sp in group], sizes)))
+    found = np.add.reduceat(inside, ends - sizes, dtype=np.intp)
+    cp_t, h_t, s_t = data["cp"][inside], data["h"][inside], data["s"][inside]
+    errors = [np.abs(cp[inside] - cp_t) / np.abs(cp_t), np.abs(h[inside] - h_t), np.abs(s[inside] - s_t)]
+    starts = (np.cumsum(found) - found)[found > 0]
+    largest = [np.maximum.reduceat(e, starts).tolist() if len(starts) else [] for e in errors]
+    k = 0
+    for sp, m, jump in zip(group, found.tolist(), continuity.tolist()):
+        sp.continuity = jump
+        if m:
+            sp.errors = (largest[0][k], largest[1][k], largest[2][k])
+            k += 1
+        else:
+            sp.errors = (None, None, None)
 
 
 @functools.lru_cache(maxsize=64)
@@ -255,6 +369,28 @@ def _table_grid(tmin: float, tmax: float, step: float) -> np.ndarray:
     grid = np.array(temperature_grid(tmin, tmax, step), dtype=float)
     grid.flags.writeable = False
     return grid
+
+
+_SPECIES_SETTINGS: dict = {}
+
+
+def _for_species(settings, species):
+    """``settings.for_species(species)``, made once per distinct settings and ``fit:`` block."""
+    key = (settings, species.fit)
+    s = _SPECIES_SETTINGS.get(key)
+    if s is None:
+        if len(_SPECIES_SETTINGS) > 256:
+            _SPECIES_SETTINGS.clear()
+        s = _SPECIES_SETTINGS[key] = settings.for_species(species)
+    return s
+
+
+def _file_name(path: str) -> str:
+    """``PurePath(path).name``; for the usual ``folder/NAME.yaml`` without making a path object."""
+    tail = path.rpartition("/")[2]
+    if tail not in ("", ".", "..") and os.sep == "/" and os.altsep is None:
+        return tail
+    return PurePath(path).name
 
 
 _MODEL_KEYS: dict = {}
@@ -281,8 +417,6 @@ def record_text(fit, identifier: str = "") -> str:
 
 def _record(p, identifier: str) -> str:
     """:func:`record_text` of a fit already printed."""
-    from pipeline.writers.formats import render
-
     elements = record_elements(p.formula, p.charge)
     if len(elements) > 5:
         raise ValueError(f"{p.name}: {len(elements)} elements (electron included) do not fit a record (at most 5)")
@@ -292,28 +426,9 @@ def _record(p, identifier: str) -> str:
         raise ValueError(f"{p.name}: a record name holds at most 18 characters (columns 1–18)")
     if len(p.name) == 18:
         identifier = ""  # a name filling columns 1–18 would run into it and read back as one word
-    text = render(
-        "record.dat.j2", name=p.name, identifier=identifier,
-        elements=elements[:4] + [None] * (4 - len(elements[:4])), fifth=elements[4] if len(elements) > 4 else None,
-        phase=p.phase, tlow=p.tlow, tmid=p.tmid, thigh=p.thigh, low=p.low, high=p.high,
-    )
+    text = formats.record(p.name, identifier, elements, p.phase, p.tlow, p.tmid, p.thigh, p.low, p.high)
     _check_record(p.name, text)
     return text
-
-
-def _at_table_step(species, table, grid, pressure):
-    """T, Cp, S, H−H298, −(G−H298)/T of the species on ``grid``: rows of the fit-grid
-    ``table`` when it holds every grid temperature (the usual case: 10 K grid, 100 K
-    table step), else computed."""
-    from pipeline.thermo import thermo_table
-
-    T = np.asarray(table.T, dtype=float)
-    idx = np.searchsorted(T, grid)
-    if table.pressure == pressure and np.all(idx < len(T)) and np.array_equal(T[np.minimum(idx, len(T) - 1)], grid):
-        src = table
-    else:
-        src, idx = thermo_table(species, grid, pressure), slice(None)
-    return tuple(np.asarray(getattr(src, f))[idx] for f in ("T", "cp", "s", "h_minus_h298", "g_fn"))
 
 
 def _uncertainty(species, T, pressure):
@@ -346,9 +461,6 @@ def assemble(fragments: list[dict[str, str]], settings) -> dict[str, bytes]:
     only string joins and the file headers (from ``settings``: ranges,
     pressure, tool version) happen here.
     """
-    from pipeline import __version__
-    from pipeline.writers.formats import render
-
     frags = sorted(fragments, key=lambda f: f["name"])
     names = [f["name"] for f in frags]
     if len(set(names)) != len(names):
@@ -358,16 +470,16 @@ def assemble(fragments: list[dict[str, str]], settings) -> dict[str, bytes]:
     common = dict(version=__version__, pressure_label=_PRESSURE_LABEL[settings.pressure],
                   pressure_pa=float(settings.pressure_pa))
     files: dict[str, bytes] = {}
-    files["thermo.dat"] = render(
+    files["thermo.dat"] = formats.render(
         "thermo.dat.j2", title="fixed-column seven-coefficient records (NASA TM-4513 layout)",
         tlow=settings.tmin, tmid=tmid, thigh=settings.tmax, records="".join(f["record"] for f in frags),
         **common,
     ).encode("utf-8")
-    files["thermo.yaml"] = render(
+    files["thermo.yaml"] = formats.render(
         "thermo.yaml.j2", format_version=FORMAT_VERSION, units=_UNITS, entries="".join(f["yaml"] for f in frags),
         **common,
     ).encode("utf-8")
-    files["REPORT.md"] = render(
+    files["REPORT.md"] = formats.render(
         "REPORT.md.j2", count=len(frags), rows="".join(f["report_row"] for f in frags).rstrip("\n"),
         notes="".join(f.get("report_note", "") for f in frags).rstrip("\n"),
         g_limit=settings.g_uncertainty_warning, grid_step=settings.grid_step, table_step=settings.table_step,

@@ -1,9 +1,17 @@
-"""Number and field formatting for the templates (jinja2 filters), and the template environment.
+"""Number and field formatting, the per-species fragments, and the template environment.
 
 Nothing here computes thermochemistry: each function turns a value into the
 exact characters a file holds.  The fixed-column layout is that of NASA
 TM-4513 (McBride, Gordon & Reno 1993): E15.8 coefficients, F10.3/F8.3
 temperatures, element symbols (A2) with counts (I3).
+
+Whole documents (``thermo.dat``, ``thermo.yaml``, ``REPORT.md``) are jinja2
+templates in ``pipeline/templates`` that use the number formats below as
+filters.  What one species contributes is made a thousand times per build,
+so each fragment is one function here: :func:`record` (its four lines of
+``thermo.dat``), :func:`species_entry` (its entry of ``thermo.yaml``),
+:func:`report_row` (its row of ``REPORT.md``) and :func:`csv_tables`
+(``tables/NAME.csv`` of many species at once).
 """
 
 from __future__ import annotations
@@ -25,13 +33,27 @@ def e15(x: float) -> str:
     >>> e15(3.5) + "|" + e15(-1.0208999e-3)
     ' 3.50000000E+00|-1.02089990E-03'
     """
-    x = float(x) + 0.0  # no negative zero
-    if abs(x) < 1e-99:
-        x = 0.0
-    text = f"{x:15.8E}"
-    if len(text) != 15:
-        raise ValueError(f"{x!r} does not fit an E15.8 field")
+    return e15_fields((x,))
+
+
+def e15_fields(values) -> str:
+    """Coefficients as consecutive E15.8 fields (15 characters each), no separators.
+
+    No negative zero; magnitudes below 1e-99 (which would need a three-digit
+    exponent) print as zero; a value that does not fit 15 columns raises ValueError.
+
+    >>> e15_fields([2.5, -0.0, 1e-120, 6.02214076e23])
+    ' 2.50000000E+00 0.00000000E+00 0.00000000E+00 6.02214076E+23'
+    """
+    xs = tuple(0.0 if abs(x) < 1e-99 else x + 0.0 for x in map(float, values))
+    text = _E15 * len(xs) % xs
+    if len(text) != 15 * len(xs):
+        bad = next(x for x in xs if len(_E15 % x) != 15)
+        raise ValueError(f"{bad!r} does not fit an E15.8 field")
     return text
+
+
+_E15 = "%15.8E"
 
 
 def f10(t: float) -> str:
@@ -91,6 +113,8 @@ def yaml_value(value) -> str:
     if kind is float:
         return _yaml_float(value)
     if kind is list or kind is tuple:
+        if value and set(map(type, value)) == _FLOAT:
+            return _yaml_floats(value)
         return "[" + ", ".join(_yaml_float(v) if type(v) is float else yaml_value(v) for v in value) + "]"
     if kind is dict:
         return "{" + ", ".join(f"{yaml_key(k)}: {_yaml_float(v) if type(v) is float else yaml_value(v)}"
@@ -124,12 +148,22 @@ def _yaml_float(value: float) -> str:
     text = repr(value + 0.0)
     if "n" in text:  # inf, nan
         return ".nan" if math.isnan(value) else ".inf" if value > 0 else "-.inf"
-    if "e" in text:
-        mantissa, exponent = text.split("e")
-        if "." not in mantissa:
-            mantissa += ".0"
-        return f"{mantissa}e{exponent}"
+    if "." not in text:  # "1e-05": a mantissa without a point, which YAML 1.1 reads as a string
+        return text.replace("e", ".0e")
     return text
+
+
+def _yaml_floats(values) -> str:
+    """A list of floats as a YAML flow sequence: :func:`_yaml_float` of each, made by
+    one ``repr`` of the whole list (Python writes a list of floats as ``[x, y]``)
+    when every float has a point (each repr holds at most one)."""
+    text = repr([v + 0.0 for v in values])
+    if "n" in text or text.count(".") != len(values):  # inf, nan, or a mantissa without a point
+        return "[" + ", ".join(map(_yaml_float, values)) + "]"
+    return text
+
+
+_FLOAT = {float}
 
 
 def yaml_block(mapping: dict, indent: int = 0) -> str:
@@ -211,15 +245,15 @@ def _rows_format(formats: tuple, rows: int) -> str:
 
 
 _POW10 = np.array([1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6])  # exact doubles
-#: word numbers in :func:`_words`: "000" … "999", then "0" … "999", then "", then "-"
-_UNPADDED, _EMPTY, _MINUS = 1000, 2000, 2001
+#: word numbers in :func:`_words`: "000" … "999", then "0" … "999", then "-0" … "-999", then ""
+_UNPADDED, _EMPTY = 1000, 3000
 
 
 @functools.lru_cache(maxsize=16)
 def _words(decimals: tuple):
     """The 4-byte words :func:`_fixed_point_rows` spells cells with (NUL-padded), and
     per column the first word of its ".ddd" block and of its "ddd," block."""
-    words = [f"{i:03d}" for i in range(1000)] + [str(i) for i in range(1000)] + ["", "-"]
+    words = [f"{i:03d}" for i in range(1000)] + [str(i) for i in range(1000)] + [f"-{i}" for i in range(1000)] + [""]
     first: dict = {}
     point, tail = [], []
     for j, d in enumerate(decimals):
@@ -243,7 +277,9 @@ def _fixed_point_rows(X, decimals: tuple) -> str:
     split into its double and its rounding error (Dekker 1971), so the
     rounding is that of the binary value, ties to even, as ``"%.Nf"`` does —
     and spelt in words of up to four characters looked up by the digit groups
-    of that integer.  Every step is exact: the integers stay below 1e15 < 2**53.
+    of that integer: the leading group of the integer part unpadded and with
+    the sign, the groups after it padded, a third group only if some cell
+    reaches a million.  Every step is exact: the integers stay below 1e15 < 2**53.
 
     Reference: T. J. Dekker, "A floating-point technique for extending the
     available precision", Numer. Math. 18, 224–242 (1971).
@@ -259,7 +295,7 @@ def _fixed_point_rows(X, decimals: tuple) -> str:
         err = (xh * scale - p) + (X - xh) * scale  # X·scale = p + err exactly
         n += (r == 0.5) & (err > 0.0)
         n -= (r == -0.5) & (err < 0.0)
-    neg = n < 0.0  # a cell printing as zero has n = 0: no sign
+    lead = _UNPADDED + 1000.0 * (n < 0.0)  # "0" … "999", or "-0" … "-999"; a cell printing as zero has n = 0
     a = np.abs(n)
     ip = np.floor(a / scale)  # integer part, and the decimals as a six-digit integer
     fp = (a - ip * scale) * _POW10[6 - dec]
@@ -269,15 +305,12 @@ def _fixed_point_rows(X, decimals: tuple) -> str:
     g0 = rest - g1 * 1e3
     f1 = np.floor(fp / 1e3)
     lut, point, tail = _words(decimals)
-    big, mid = g2 > 0.0, g1 > 0.0
-    words = np.stack([
-        np.where(neg, _MINUS, _EMPTY),
-        np.where(big, _UNPADDED + g2, _EMPTY),
-        np.where(big, g1, np.where(mid, _UNPADDED + g1, _EMPTY)),
-        np.where(big | mid, g0, _UNPADDED + g0),
-        point + f1,
-        tail + (fp - f1 * 1e3),
-    ], axis=-1).astype(np.intp)
+    mid = g1 > 0.0
+    groups = [np.where(mid, lead + g1, _EMPTY), np.where(mid, g0, lead + g0)]
+    big = g2 > 0.0
+    if big.any():
+        groups = [np.where(big, lead + g2, _EMPTY), np.where(big, g1, groups[0]), np.where(big | mid, g0, lead + g0)]
+    words = np.stack(groups + [point + f1, tail + (fp - f1 * 1e3)], axis=-1).astype(np.intp)
     return lut.take(words).tobytes().translate(None, b"\0").decode("ascii")
 
 
@@ -292,10 +325,126 @@ def md_number(x: float, fmt: str = ".3f") -> str:
     return csv_number(x, fmt)
 
 
-FILTERS = {
-    "e15": e15, "f10": f10, "f8": f8, "element": element_field, "yaml": yaml_value,
-    "yaml_key": yaml_key, "yaml_block": yaml_block, "csv": csv_number, "csv_rows": csv_rows, "md": md_number,
-}
+# --------------------------------------------------------------------------
+# One species' fragments
+# --------------------------------------------------------------------------
+
+
+def record(name: str, identifier: str, elements, phase: str, tlow: float, tmid: float, thigh: float,
+           low, high) -> str:
+    """One species' four 80-column lines of thermo.dat (NASA TM-4513 layout, docs/format.md).
+
+    Line 1: name (columns 1–18), ``identifier`` (19–24), four element fields
+    (25–44), phase (45), Tlow, Thigh (F10.3) and Tmid (F8.3) in 46–73, a fifth
+    element (74–78), then ``1`` in column 80.  Lines 2–4: the high range a1 … a7,
+    then the low range, five E15.8 fields a line, the line number in column 80.
+    ``elements`` is a list of (symbol, count), at most five; the caller checks the
+    widths of name and identifier (:func:`pipeline.writers.record_text`).
+
+    >>> a = [2.5, 0.0, 0.0, 0.0, 0.0, -745.375, 4.37967417]
+    >>> print(record("AR", "9F86D0", [("Ar", 1)], "G", 200.0, 1000.0, 6000.0, a, a), end="")
+    AR                9F86D0Ar  1               G   200.000  6000.0001000.000      1
+     2.50000000E+00 0.00000000E+00 0.00000000E+00 0.00000000E+00 0.00000000E+00    2
+    -7.45375000E+02 4.37967417E+00 2.50000000E+00 0.00000000E+00 0.00000000E+00    3
+     0.00000000E+00 0.00000000E+00-7.45375000E+02 4.37967417E+00                   4
+    """
+    slots = list(elements[:4]) + [None] * (4 - len(elements[:4]))
+    fifth = elements[4] if len(elements) > 4 else None
+    c = e15_fields(tuple(high) + tuple(low))
+    return (f"{'%-18s%-6s' % (name, identifier)}{''.join(map(element_field, slots))}{phase}"
+            f"{f10(tlow)}{f10(thigh)}{f8(tmid)}{element_field(fifth)} 1\n"
+            f"{c[:75]}    2\n{c[75:150]}    3\n{c[150:]}                   4\n")
+
+
+def species_entry(name: str, composition: dict, charge: int, phase: str, molar_mass: float, tmid: float,
+                  ranges: list[dict], reference_state: dict, quality: dict, uncertainty: dict | None,
+                  sources, species_file: str, sha256: str, version: str, model: dict, pressure_pa: float) -> str:
+    """One species' entry in the ``species:`` list of thermo.yaml (docs/format.md), ending in a newline.
+
+    Top-level keys in block style, each value a flow node (:func:`yaml_value`);
+    ``ranges`` (dicts with ``tmin``, ``tmax``, ``coefficients``) and ``sources``
+    as block lists; ``quality`` and ``uncertainty`` as nested blocks
+    (:func:`yaml_block`) — ``fit_quality: {}`` when there is none, no
+    ``uncertainty`` key when there is none.
+
+    >>> print(species_entry("AR", {"Ar": 1}, 0, "G", 0.039948, 1000.0,
+    ...     [{"tmin": 200.0, "tmax": 1000.0, "coefficients": [2.5, 0.0]}], {"s298": 154.8}, {}, None,
+    ...     ["from memory"], "Ar.yaml", "9f86d0", "0.1.0", {"pressure": "bar"}, 1e5), end="")
+    - name: "AR"
+      composition: {Ar: 1}
+      charge: 0
+      phase: "G"
+      molar_mass: 0.039948
+      tmid: 1000.0
+      ranges:
+      - {tmin: 200.0, tmax: 1000.0, coefficients: [2.5, 0.0]}
+      reference_state: {s298: 154.8}
+      fit_quality: {}
+      sources:
+      - "from memory"
+      provenance:
+        species_file: "Ar.yaml"
+        sha256: "9f86d0"
+        tool_version: "0.1.0"
+        model: {pressure: "bar"}
+        reference_pressure: 100000.0
+    """
+    y = yaml_value
+    out = [f"- name: {y(name)}\n  composition: {y(composition)}\n  charge: {y(charge)}\n  phase: {y(phase)}\n"
+           f"  molar_mass: {y(molar_mass)}\n  tmid: {y(tmid)}\n  ranges:\n"]
+    out += [f"  - {{tmin: {y(r['tmin'])}, tmax: {y(r['tmax'])}, coefficients: {y(r['coefficients'])}}}\n"
+            for r in ranges]
+    out.append(f"  reference_state: {y(reference_state)}\n")
+    out.append(f"  fit_quality:\n{yaml_block(quality, 4)}\n" if quality else "  fit_quality: {}\n")
+    if uncertainty:
+        out.append(f"  uncertainty:\n{yaml_block(uncertainty, 4)}\n")
+    out.append("  sources:\n")
+    out += [f"  - {y(source)}\n" for source in sources]
+    out.append(f"  provenance:\n    species_file: {y(species_file)}\n    sha256: {y(sha256)}\n"
+               f"    tool_version: {y(version)}\n    model: {y(model)}\n    reference_pressure: {y(pressure_pa)}\n")
+    return "".join(out)
+
+
+def report_row(name: str, formula: str, dhf298: float, s298: float, cp298: float, tmid: float, tmid_auto: bool,
+               cp_error: float | None, h_error: float | None, s_error: float | None, continuity: float,
+               u_g298: float | None, u_g1000: float | None, plot: str, warnings: str) -> str:
+    """One species' row of the species table of REPORT.md (columns in ``REPORT.md.j2``), ending in a newline.
+
+    ΔfH°298 [kJ/mol], S°298 and Cp°298 [J/mol/K] with three decimals, Tmid [K]
+    with one (`` (auto)`` if searched), max |ΔCp|/Cp, max |ΔH| [J/mol], max |ΔS|
+    [J/mol/K] and the jump at Tmid, u(G°) at 298.15 and 1000 K [kJ/mol];
+    ``—`` for a number that is None (:func:`md_number`).
+
+    >>> report_row("AR", "Ar1", 0.0, 154.846, 20.786, 1000.0, False, 1e-12, 0.0, 0.0, 0.0, None, None, "", "")
+    '| `AR` | Ar1 | 0.000 | 154.846 | 20.786 | 1000.0 | 1.00e-12 | 0.00 | 0.0000 | 0.0e+00 | — / — |  |  |\\n'
+    """
+    return (f"| `{name}` | {formula} | {md_number(dhf298, '.3f')} | {md_number(s298, '.3f')} | "
+            f"{md_number(cp298, '.3f')} | {md_number(tmid, '.1f')}{' (auto)' if tmid_auto else ''} | "
+            f"{md_number(cp_error, '.2e')} | {md_number(h_error, '.2f')} | {md_number(s_error, '.4f')} | "
+            f"{md_number(continuity, '.1e')} | {md_number(u_g298, '.2f')} / {md_number(u_g1000, '.2f')} | "
+            f"{plot} | {warnings} |\n")
+
+
+def csv_tables(header, values, formats, counts) -> list[str]:
+    """The texts of several ``tables/NAME.csv`` with the same columns, made at once: each
+    the column names joined by commas, then its ``counts[i]`` consecutive rows of
+    ``values`` (:func:`csv_rows` of the whole of ``values``, cut at the rows).
+
+    >>> csv_tables(["T [K]", "Cp [J/mol/K]"], np.array([[298.15, 20.786], [300.0, 20.786], [298.15, 29.1]]),
+    ...            [".2f", ".6f"], [2, 1])
+    ['T [K],Cp [J/mol/K]\\n298.15,20.786000\\n300.00,20.786000\\n', 'T [K],Cp [J/mol/K]\\n298.15,29.100000\\n']
+    """
+    head = ",".join(header) + "\n"
+    text = csv_rows(values, formats)
+    if len(counts) == 1:
+        return [head + text]
+    row_ends = np.flatnonzero(np.frombuffer(text.encode("ascii"), dtype=np.uint8) == 10) + 1  # after each newline
+    cuts = np.concatenate(([0], row_ends))[np.cumsum([0, *counts])].tolist()
+    return [head + text[a:b] for a, b in zip(cuts[:-1], cuts[1:])]
+
+
+#: the number formats the document templates use
+FILTERS = {"f10": f10, "yaml": yaml_value, "md": md_number}
 
 
 @functools.lru_cache(maxsize=None)
