@@ -10,7 +10,7 @@ output folder (``species/`` → ``output/`` by default):
    change a number invalidates it;
 2. compute what is missing — load, partition functions, fit (batched across
    species, :func:`pipeline.fit.fit_tables`), render the species' fragments
-   (:func:`pipeline.writers.species_fragments`) — in ``--jobs`` processes;
+   (:func:`pipeline.writers.batch_fragments`) — in ``--jobs`` processes;
 3. assemble the database (:func:`pipeline.writers.assemble`) and write only
    the files whose bytes change, atomically and as one recoverable step.
 
@@ -271,7 +271,7 @@ def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list
     from pipeline.fit import fit_options, fit_tables
     from pipeline.species import _Checker, check_ranges, parse_species
     from pipeline.thermo import temperature_grid, thermo_table, thermo_tables
-    from pipeline.writers import species_fragments
+    from pipeline.writers import batch_fragments
 
     errors: list[Diagnostic] = []
     parsed = []  # (key, disp, species, warnings, settings); loaded adds the table
@@ -326,13 +326,11 @@ def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list
 
     cache = Cache(Path(cache_root).parent) if cache_root else None
     entries = []
-    for (key, disp, sp, warns, s, table), fit in zip(loaded, fits):
-        if fit is None:
-            continue
-        try:
-            fragments = species_fragments(sp, table, fit, s)
-        except ValueError as exc:  # e.g. a record that does not fit its columns
-            errors.append(Diagnostic(disp, "", f"cannot be written: {exc}"))
+    fitted = [(item, fit) for item, fit in zip(loaded, fits) if fit is not None]
+    rendered = batch_fragments([(sp, table, fit, s) for (_, _, sp, _, s, table), fit in fitted])
+    for ((key, disp, sp, warns, s, table), fit), fragments in zip(fitted, rendered):
+        if isinstance(fragments, ValueError):  # e.g. a record that does not fit its columns
+            errors.append(Diagnostic(disp, "", f"cannot be written: {fragments}"))
             continue
         extra: dict[str, bytes] = {}
         if s.plots:
