@@ -81,6 +81,15 @@ def round_sig(x: float) -> float:
     return float(f"{x:.8E}") + 0.0  # SIGNIFICANT = 9 digits
 
 
+def _round_all(xs) -> tuple:
+    """``tuple(round_sig(x) for x in xs)``, with one formatting call when every |x| lies
+    in [1e-99, 1e100) (the other cases, zeros among them, value by value)."""
+    xs = tuple(map(float, xs))
+    if xs and 1e-99 <= min(map(abs, xs)) and sum(map(abs, xs)) < 1e100:  # False for nan, inf
+        return tuple(map(float, (("%.8E " * len(xs)) % xs).split()))
+    return tuple(map(round_sig, xs))
+
+
 def round_temperature(t: float) -> float:
     """A temperature [K] as F10.3/F8.3 prints it.
 
@@ -100,7 +109,7 @@ def last_digit(x: float) -> float:
     """
     if x == 0.0:
         return 0.0
-    exponent = int(f"{x:.{SIGNIFICANT - 1}E}".split("E")[1])
+    exponent = int(f"{x:.{SIGNIFICANT - 1}E}".rpartition("E")[2])
     return 10.0 ** (exponent - (SIGNIFICANT - 1))
 
 
@@ -129,13 +138,7 @@ def _dot(u, w) -> float:
 def _close(a5, T: float, targets: dict) -> tuple:
     """Printed a1 … a7 from printed a1 … a5: a1 re-fixed for Cp (if Cp is a
     target), a6 and a7 re-derived for H and S at T, all rounded."""
-    a5 = [float(x) for x in a5]
-    v = _poly_list(T)
-    if "cp" in targets:
-        a5[0] = round_sig(a5[0] + targets["cp"] - _dot(v["cp"], a5))
-    a6 = round_sig((targets["h"] - _dot(v["h"], a5)) * T)
-    a7 = round_sig(targets["s"] - _dot(v["s"], a5))
-    return tuple(a5) + (a6, a7)
+    return _checker(T, targets)[1]([float(x) for x in a5], "cp" in targets)[0]
 
 
 def _value(q: str, a, T: float) -> float:
@@ -146,10 +149,54 @@ def _value(q: str, a, T: float) -> float:
 
 
 def _meets(a: tuple, T: float, targets: dict) -> bool:
-    for q, t in targets.items():
-        if not abs(_value(q, a, T) - t) <= MARGIN * _BAR[q] * max(abs(t), 1.0):
+    """Whether the seven printed coefficients ``a`` meet every target at T (see :func:`_checker`)."""
+    return _checker(T, targets)[0](a)
+
+
+def _checker(T: float, targets: dict):
+    """``meets(a)`` and ``state(a5, refix)`` for ``targets`` at T, with the polynomial
+    parts at T and the tolerance windows worked out once.
+
+    ``meets(a)``: whether the seven coefficients ``a`` give every target within
+    its window, :data:`MARGIN` of its bar relative to max(|target|, 1) (the sums
+    are those of :func:`_value`, written out).  ``state(a5, refix)``: printed
+    a1 … a7 from printed a1 … a5 — a1 re-fixed for Cp if ``refix``, a6 and a7
+    re-derived for H and S at T — the exact a6 and a7, and whether every target
+    is met (the windows compared as ratios).
+    """
+    v = _poly_list(T)
+    c0, c1, c2, c3, c4 = v["cp"]
+    h0, h1, h2, h3, h4 = v["h"]
+    s0, s1, s2, s3, s4 = v["s"]
+    th, ts = targets["h"], targets["s"]
+    wh, ws = MARGIN * _BAR["h"] * max(abs(th), 1.0), MARGIN * _BAR["s"] * max(abs(ts), 1.0)
+    with_cp = "cp" in targets
+    tcp = targets["cp"] if with_cp else 0.0
+    wcp = MARGIN * _BAR["cp"] * max(abs(tcp), 1.0)
+
+    def meets(a) -> bool:
+        a0, a1, a2, a3, a4 = a[0], a[1], a[2], a[3], a[4]
+        if with_cp and not abs(0.0 + c0 * a0 + c1 * a1 + c2 * a2 + c3 * a3 + c4 * a4 - tcp) <= wcp:
             return False
-    return True
+        if not abs(0.0 + h0 * a0 + h1 * a1 + h2 * a2 + h3 * a3 + h4 * a4 + a[5] / T - th) <= wh:
+            return False
+        return abs(0.0 + s0 * a0 + s1 * a1 + s2 * a2 + s3 * a3 + s4 * a4 + a[6] - ts) <= ws
+
+    def state(a5, refix: bool):
+        a0, a1, a2, a3, a4 = a5
+        if refix:
+            a0 = round_sig(a0 + tcp - (0.0 + c0 * a0 + c1 * a1 + c2 * a2 + c3 * a3 + c4 * a4))
+        dh = 0.0 + h0 * a0 + h1 * a1 + h2 * a2 + h3 * a3 + h4 * a4
+        ds = 0.0 + s0 * a0 + s1 * a1 + s2 * a2 + s3 * a3 + s4 * a4
+        x6 = (th - dh) * T
+        x7 = ts - ds
+        a6, a7 = round_sig(x6), round_sig(x7)
+        ok = abs(dh + a6 / T - th) / wh <= 1.0 and abs(ds + a7 - ts) / ws <= 1.0
+        if ok and with_cp:
+            ok = abs(0.0 + c0 * a0 + c1 * a1 + c2 * a2 + c3 * a3 + c4 * a4 + 0.0 - tcp) / wcp <= 1.0
+        return (a0, a1, a2, a3, a4, a6, a7), x6, x7, ok
+
+    return meets, state
 
 
 def _round_sig_array(x: np.ndarray) -> np.ndarray:
@@ -246,30 +293,7 @@ def _nudged(base: list[float], T: float, targets: dict, span: tuple[float, float
     return None
 
 
-def _windows(targets: dict) -> dict:
-    """The tolerance window of each target (what :func:`_meets` allows)."""
-    return {q: MARGIN * _BAR[q] * max(abs(t), 1.0) for q, t in targets.items()}
-
-
-def _state(a5: list[float], T: float, targets: dict, v: dict, refix: bool, windows: dict):
-    """Printed a1 … a7 (a1 re-fixed for Cp if ``refix``), exact a6, a7, and whether
-    every target is met within its tolerance window (``windows``)."""
-    a5 = list(a5)
-    if refix:
-        a5[0] = round_sig(a5[0] + targets["cp"] - _dot(v["cp"], a5))
-    dh = _dot(v["h"], a5)
-    ds = _dot(v["s"], a5)
-    x6 = (targets["h"] - dh) * T
-    x7 = targets["s"] - ds
-    a6, a7 = round_sig(x6), round_sig(x7)
-    a = (*a5, a6, a7)
-    ok = abs(dh + a6 / T - targets["h"]) / windows["h"] <= 1.0 and abs(ds + a7 - targets["s"]) / windows["s"] <= 1.0
-    if ok and "cp" in targets:
-        ok = abs(_dot(v["cp"], a5) + 0.0 - targets["cp"]) / windows["cp"] <= 1.0
-    return a, x6, x7, ok
-
-
-def _aimed(base: list[float], T: float, targets: dict, span, start) -> tuple | None:
+def _aimed(base: list[float], T: float, targets: dict, span, start, meets, state) -> tuple | None:
     """Nudges aimed at the printed grid of a6 (and of a7), tried in pure Python.
 
     A move of k last-digit units of a_j shifts the exact a6 by k·e_j (linear in
@@ -280,7 +304,8 @@ def _aimed(base: list[float], T: float, targets: dict, span, start) -> tuple | N
     second move of a fine coefficient with a1 held.  Candidates are tried in
     order of grid distance and Cp/R change over ``span``; every one is checked
     exactly as printed, and one that fails the check gives way to the next.
-    ``start`` is :func:`_state` of ``base`` (a1 re-fixed for Cp when Cp is a target).
+    ``meets`` and ``state`` are :func:`_checker`'s for the targets; ``start`` is
+    ``state(base)`` (a1 re-fixed for Cp when Cp is a target).
     """
     cp_fixed = "cp" in targets
     v = _poly_list(T)
@@ -291,7 +316,6 @@ def _aimed(base: list[float], T: float, targets: dict, span, start) -> tuple | N
     knobs = [j for j in range(5) if steps[j]]
     if not knobs:
         return None
-    windows = _windows(targets)
     a, x6, x7, _ = start
     g6, g7 = last_digit(a[5]) or 1.0, last_digit(a[6]) or 1.0
 
@@ -326,8 +350,8 @@ def _aimed(base: list[float], T: float, targets: dict, span, start) -> tuple | N
                 return None
             tried += 1
             trial = moved(base, j, k)
-            a, x6t, x7t, ok = _state(trial, T, targets, v, cp_fixed, windows)
-            if ok and _meets(a, T, targets):
+            a, x6t, x7t, ok = state(trial, cp_fixed)
+            if ok and meets(a):
                 return a
             a5 = list(a[:5])  # a1 as re-fixed; correct the small miss with a1 held
             sides = {"h": (x6t, g6), "s": (x7t, g7)}
@@ -336,22 +360,23 @@ def _aimed(base: list[float], T: float, targets: dict, span, start) -> tuple | N
                 k2 = round((round(x / g) * g - x) / e2)
                 if not k2 or abs(k2) * reach[j2] > limit:
                     continue
-                a2, _, _, ok2 = _state(moved(a5, j2, k2), T, targets, v, False, windows)
-                if ok2 and _meets(a2, T, targets):
+                a2, _, _, ok2 = state(moved(a5, j2, k2), False)
+                if ok2 and meets(a2):
                     return a2
     return None
 
 
 def _balanced(src, T: float, targets: dict, span, what: str, name: str) -> tuple:
-    plain = tuple(round_sig(x) for x in src)
-    if _meets(plain, T, targets):  # plain rounding is enough (and printed input stays as it is)
+    plain = _round_all(src)
+    meets, state = _checker(T, targets)
+    if meets(plain):  # plain rounding is enough (and printed input stays as it is)
         return plain
     base = list(plain[:5])
-    start = _state(base, T, targets, _poly_list(T), "cp" in targets, _windows(targets))
-    a = start[0]  # a6, a7 (and a1 for Cp) re-derived from the rounded a1 … a5, as _close makes them
-    if _meets(a, T, targets):
+    start = state(base, "cp" in targets)
+    a = start[0]  # a6, a7 (and a1 for Cp) re-derived from the rounded a1 … a5: _close(base)
+    if meets(a):
         return a
-    a = _aimed(base, T, targets, span, start) or _nudged(base, T, targets, span)
+    a = _aimed(base, T, targets, span, start, meets, state) or _nudged(base, T, targets, span)
     if a is None:
         raise ValueError(f"{name}: no printed coefficients meet {what} (nudges of up to three last digits tried)")
     return a
