@@ -561,7 +561,7 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None, owner=None, incumbent=No
                 if not live.size:
                     break
                 need = -(-live.size // TILE) * TILE
-                if need < slots:  # pack the rows still iterating into fewer tiles
+                if need <= slots - max(TILE, slots // 4):  # pack the rows still iterating into fewer tiles
                     keep = np.r_[live, np.full(need - live.size, live[0])]
                     row, alive = row[keep], np.arange(need) < live.size
                     ys, inv, inv2, mask, w, dres = (np.ascontiguousarray(a[keep])
@@ -846,9 +846,16 @@ def _fit_group(basis, y, tables, opts, keeps, sd):
                  v0=_spread(state.weights, bsub.T, bfin.T))
     # the subset's dual bound is a lower bound of the full grid's limit too; where the
     # full-grid error is not within 1 + 2 tol of it, continue on the full grid
-    mask = basis.mask(tmid)
-    fitted = _mm(r3.alpha, basis.C.T) + mask * _mm(r3.beta, basis.C.T)
-    r3.error = np.abs(fitted / y - 1.0).max(axis=1)
+    S = y.shape[0]
+    ab = np.zeros((2 * (-(-S // TILE) * TILE), 5))  # alpha over beta, rows padded to whole tiles
+    ab[:S], ab[ab.shape[0] // 2 : ab.shape[0] // 2 + S] = r3.alpha, r3.beta
+    fitted = _tiled(ab, np.ascontiguousarray(basis.C.T))
+    high = fitted[ab.shape[0] // 2 : ab.shape[0] // 2 + S]
+    high *= basis.mask(tmid)
+    high += fitted[:S]
+    high /= y
+    high -= 1.0
+    r3.error = np.abs(high, out=high).max(axis=1)
     redo = np.flatnonzero(r3.error > (1.0 + 2.0 * FINAL_TOL) * r3.bound)
     if redo.size:
         r4 = _lawson(basis, y[redo], tmid[redo], sd, FINAL_TOL, FINAL_ITERATIONS,
