@@ -473,31 +473,50 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None, owner=None, incumbent=No
         owner = np.asarray(owner)
         known = np.array(incumbent, dtype=float)  # least achieved error per species so far
     group = max(TILE, (BLOCK_ELEMENTS // npad) // TILE * TILE)
-    for g0 in range(0, R, group):
-        rows = np.arange(g0, min(R, g0 + group))
+    # a group whose rows still iterating fall below this many hands them to a common tail,
+    # iterated after the last group: fewer passes of the loop on almost empty groups
+    tail_rows = max(TILE, group // 8)
+    # per slot: the row it works on (finished rows and padding copies are not alive), y, 1/y,
+    # 1/y², the high-range mask, Mqᵀ (nq, 5, ·), weights, residual y − Bθ, θ (p, ·), least
+    # error so far, its (alpha over beta), best bound, iterations
+    STATE = ("row", "alive", "ys", "inv", "inv2", "mask", "MqT", "w", "dres", "theta",
+             "best", "best_ab", "bnd", "it")
+
+    def pick(st, keep, m):
+        """The state of slots ``keep`` (the first m alive), padded to whole tiles with copies of keep[0]."""
+        slots = -(-m // TILE) * TILE
+        keep = np.r_[keep, np.full(slots - keep.size, keep[0])]
+        old = st["row"].size
+        out = {k: (np.ascontiguousarray(st[k][..., keep]) if k in ("MqT", "theta") else
+                   np.concatenate([st[k][keep], st[k][old + keep]]) if k == "best_ab" else
+                   np.ascontiguousarray(st[k][keep])) for k in STATE}
+        out["alive"] = np.arange(slots) < m
+        return out
+
+    def start(rows):
         m = rows.size
         slots = -(-m // TILE) * TILE
-        row = np.r_[rows, np.full(slots - m, rows[-1])]  # the row each slot works on
-        alive = np.arange(slots) < m  # False: a finished row or a padding copy (results discarded)
+        row = np.r_[rows, np.full(slots - m, rows[-1])]
         ys = np.ones((slots, npad))
         ys[:, :n] = y[row]
         inv = np.zeros((slots, npad))
         np.divide(1.0, ys[:, :n], out=inv[:, :n])
-        inv2 = inv * inv
-        mask = mask_v[which[row]]
-        MqT = np.ascontiguousarray(Mq_v[which[row]].transpose(1, 2, 0))  # (nq, 5, slots)
         w = np.zeros((slots, npad))  # Lawson weights, Σ w = 1
         if v0 is None:
             w[:, :n] = 1.0 / n
         else:
             w0 = np.ascontiguousarray(v0[row], dtype=float)
             w[:, :n] = w0 / w0.sum(axis=1, keepdims=True)
-        dres = ys.copy()  # y − Bθ
-        theta = np.zeros((5 + nq, slots))  # rows last, as in _normal
-        best = np.full(slots, np.inf)  # per slot: least error so far, its parameters, best bound
-        best_ab = np.zeros((2 * slots, 5))
-        bnd = np.zeros(slots)
-        it = 0
+        return dict(row=row, alive=np.arange(slots) < m, ys=ys, inv=inv, inv2=inv * inv,
+                    mask=mask_v[which[row]], MqT=np.ascontiguousarray(Mq_v[which[row]].transpose(1, 2, 0)),
+                    w=w, dres=ys.copy(), theta=np.zeros((5 + nq, slots)), best=np.full(slots, np.inf),
+                    best_ab=np.zeros((2 * slots, 5)), bnd=np.zeros(slots), it=np.zeros(slots, dtype=int))
+
+    def iterate(st, defer):
+        """Iterate the slots of ``st`` until all are finished (None) or, with ``defer``, until
+        fewer than tail_rows are still alive (their state, unpadded, is returned)."""
+        row, alive, ys, inv, inv2, mask, MqT, w, dres, theta, best, best_ab, bnd, it = (st[k] for k in STATE)
+        slots = row.size
         buf = np.empty((2 * slots, npad))  # work space
         ar = np.empty((slots, npad))
         wa = np.empty((slots, npad))
@@ -546,33 +565,43 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None, owner=None, incumbent=No
                 np.minimum.at(least, own[alive], best[alive])
                 finished |= alive & (it >= 2) & (bound > least[own] * (1 + _TIE_REL) + _TIE_ABS)
             rf = np.flatnonzero(finished)
-            if rf.size:
-                rr = row[rf]
-                res.error[rr] = best[rf]
-                res.alpha[rr] = best_ab[rf]
-                res.beta[rr] = best_ab[slots + rf]
-                res.bound[rr] = bnd[rf]
-                res.iterations[rr] = it
-                res.weights[rr] = w[rf, :n]
-                if owner is not None:
-                    np.minimum.at(known, owner[rr], best[rf])
-                alive &= ~finished
-                live = np.flatnonzero(alive)
-                if not live.size:
-                    break
-                need = -(-live.size // TILE) * TILE
-                if need <= slots - max(TILE, slots // 4):  # pack the rows still iterating into fewer tiles
-                    keep = np.r_[live, np.full(need - live.size, live[0])]
-                    row, alive = row[keep], np.arange(need) < live.size
-                    ys, inv, inv2, mask, w, dres = (np.ascontiguousarray(a[keep])
-                                                    for a in (ys, inv, inv2, mask, w, dres))
-                    theta, MqT = np.ascontiguousarray(theta[:, keep]), np.ascontiguousarray(MqT[:, :, keep])
-                    best, bnd = best[keep], bnd[keep]
-                    best_ab = np.concatenate([best_ab[keep], best_ab[slots + keep]])
-                    slots = need
-                    buf = np.empty((2 * slots, npad))
-                    ar = np.empty((slots, npad))
-                    wa = np.empty((slots, npad))
+            if not rf.size:
+                continue
+            rr = row[rf]
+            res.error[rr] = best[rf]
+            res.alpha[rr] = best_ab[rf]
+            res.beta[rr] = best_ab[slots + rf]
+            res.bound[rr] = bnd[rf]
+            res.iterations[rr] = it[rf]
+            res.weights[rr] = w[rf, :n]
+            if owner is not None:
+                np.minimum.at(known, owner[rr], best[rf])
+            alive &= ~finished
+            live = np.flatnonzero(alive)
+            if not live.size:
+                return None
+            st = dict(zip(STATE, (row, alive, ys, inv, inv2, mask, MqT, w, dres, theta, best, best_ab, bnd, it)))
+            if defer and live.size < tail_rows:
+                return {k: (v[..., live] if k in ("MqT", "theta") else
+                            np.concatenate([v[live], v[slots + live]]) if k == "best_ab" else v[live])
+                        for k, v in st.items()}
+            need = -(-live.size // TILE) * TILE
+            if need <= slots - max(TILE, slots // 4):  # pack the rows still iterating into fewer tiles
+                return iterate(pick(st, live, live.size), defer)
+
+    tail = []
+    for g0 in range(0, R, group):
+        left = iterate(start(np.arange(g0, min(R, g0 + group))), defer=R > group)
+        if left is not None:
+            tail.append(left)
+    if tail:
+        m = sum(t["row"].size for t in tail)
+        joined = {k: (np.concatenate([t[k] for t in tail], axis=-1) if k in ("MqT", "theta") else
+                      np.concatenate([t[k] for t in tail])) for k in STATE if k != "best_ab"}
+        # best_ab of each part is (alpha over beta): regroup as all alphas over all betas
+        joined["best_ab"] = np.concatenate([t["best_ab"][: t["row"].size] for t in tail]
+                                           + [t["best_ab"][t["row"].size:] for t in tail])
+        iterate(pick(joined, np.arange(m), m), defer=False)
     # the bound is exact in exact arithmetic; at round-off level (exact fits) it may exceed the error
     res.bound = np.minimum(res.bound, res.error)
     return res
