@@ -1216,7 +1216,8 @@ def synthetic_species(n: int, seed: int = 0) -> list:
 
 
 def benchmark_fit(n: int = 1000, seed: int = 0, repeat: int = 3) -> dict:
-    """Time :func:`fit_tables` (Tmid search included) on ``n`` synthetic species.
+    """Time the fitting stage of a build on ``n`` synthetic species: :func:`fit_options`
+    under default settings, then :func:`fit_tables` (Tmid search included).
 
     The tables are computed first and not timed.  Returns the best wall time
     of ``repeat`` runs [s] and the least CPU time [s], species per second, and
@@ -1226,16 +1227,17 @@ def benchmark_fit(n: int = 1000, seed: int = 0, repeat: int = 3) -> dict:
     """
     import time
 
+    from pipeline.settings import Settings
     from pipeline.thermo import thermo_table
 
     species = synthetic_species(n, seed)
     tables = [thermo_table(sp) for sp in species]
-    options = [dict(formula=sp.formula) for sp in species]
+    settings = Settings()
     best = cpu = math.inf
     fits = []
     for _ in range(repeat):
         t0, c0 = time.perf_counter(), time.process_time()
-        fits = fit_tables(tables, options)
+        fits = fit_tables(tables, [fit_options(sp, settings) for sp in species])
         best = min(best, time.perf_counter() - t0)
         cpu = min(cpu, time.process_time() - c0)
     return dict(species=n, seconds=best, cpu_seconds=cpu, species_per_second=n / best,
