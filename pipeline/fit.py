@@ -649,14 +649,16 @@ def _coefficients(basis, alpha, beta, tmid, dhf298, s298, flat=None):
 
 
 def _property_error(fit, ref, T, relative_floor):
-    """PropertyError per row of arrays (S, n)."""
-    d = np.abs(fit - ref)
-    rel = d / (np.maximum(np.abs(ref), 1.0) if relative_floor else np.abs(ref))
-    ir = rel.argmax(axis=1)
+    """PropertyError per row of arrays (S, n) (``fit`` is overwritten)."""
+    d = np.subtract(fit, ref, out=fit)
+    np.abs(d, out=d)
+    k = np.arange(d.shape[0])
     ia = d.argmax(axis=1)
-    k = np.arange(fit.shape[0])
+    max_abs = d[k, ia].tolist()
+    d /= np.maximum(np.abs(ref), 1.0) if relative_floor else np.abs(ref)
+    ir = d.argmax(axis=1)
     return [_make(PropertyError, max_rel=a, t_rel=b, max_abs=c, t_abs=e)
-            for a, b, c, e in zip(rel[k, ir].tolist(), T[ir].tolist(), d[k, ia].tolist(), T[ia].tolist())]
+            for a, b, c, e in zip(d[k, ir].tolist(), T[ir].tolist(), max_abs, T[ia].tolist())]
 
 
 def _make(cls, **fields):
@@ -692,6 +694,30 @@ def _piecewise(fn, low, high, tmid, T):
         use_low = T[i_hi:i_lo][None, :] <= tmid[:, None]
         out[:, i_hi:i_lo] = np.where(use_low, lo[:, i_hi:], hi[:, : i_lo - i_hi])
     return out
+
+
+def _between_points(low, high, tmid, T, tlow, thigh):
+    """(S,) bound on how far the fitted Cp/R can exceed its range of values on the grid T,
+    anywhere in [tlow, thigh] [K].
+
+    Between grid points a C¹ function with |f''| ≤ M2 departs from the chord by at most
+    h² M2 / 8 (h the largest spacing), and beyond the ends by at most g M1 (g the gap to
+    tlow or thigh, |f'| ≤ M1).  f'' is a quadratic on each range, so M2 is its largest
+    absolute value at the range ends or its vertex; M1 is bounded term by term on
+    [0, thigh].  Doubled, plus 1e-9 relative, for the rounding of the evaluations.
+    """
+    h = float(np.diff(T).max()) if T.size > 1 else 0.0
+    g = max(float(T[0]) - tlow, thigh - float(T[-1]), 0.0)
+    m1 = m2 = 0.0
+    for a, t0, t1 in ((low, np.full(tmid.size, tlow), tmid), (high, tmid, np.full(tmid.size, thigh))):
+        c2, c3, c4 = 2 * a[:, 2], 6 * a[:, 3], 12 * a[:, 4]  # f'' = c2 + c3 T + c4 T²
+        vertex = np.clip(-c3 / np.where(c4 != 0, 2 * c4, np.inf), t0, t1)
+        for t in (t0, t1, vertex):
+            m2 = np.maximum(m2, np.abs(c2 + t * (c3 + t * c4)))
+        b = np.abs(a[:, :5])
+        m1 = np.maximum(m1, b[:, 1] + thigh * (2 * b[:, 2] + thigh * (3 * b[:, 3] + thigh * 4 * b[:, 4])))
+    scale = np.maximum(np.abs(low[:, 0]), np.abs(high[:, 0]))
+    return 2 * (h * h / 8 * m2 + g * m1) + 1e-9 * scale
 
 
 def _abs_terms(a, T):
@@ -942,11 +968,11 @@ def _results(basis, y, tables, opts, keeps, sd, tmid, auto, res):
     cp_f, h_f, s_f = (_piecewise(fn, low, high, tmid, T) for fn in (nasa7.cp_r, nasa7.h_rt, nasa7.s_r))
     h_t = np.stack([np.asarray(t.h, dtype=float)[k] for t, k in zip(tables, keeps)]) / (C.R * T)
     s_t = np.stack([np.asarray(t.s, dtype=float)[k] for t, k in zip(tables, keeps)]) / C.R
+    g_f = h_f - s_f
     errs = {
-        "cp_r": _property_error(cp_f, y, T, False),
+        "g_rt": _property_error(g_f, h_t - s_t, T, True),
         "h_rt": _property_error(h_f, h_t, T, True),
         "s_r": _property_error(s_f, s_t, T, True),
-        "g_rt": _property_error(h_f - s_f, h_t - s_t, T, True),
     }
     # conditioning: the 1/Cp-scaled design matrix (unit weights), and evaluation of the monomials
     MqT = np.ascontiguousarray(basis.qmap(tmid, sd).transpose(1, 2, 0))
@@ -957,13 +983,15 @@ def _results(basis, y, tables, opts, keeps, sd, tmid, auto, res):
     cond = np.sqrt(ev[:, -1] / np.maximum(ev[:, 0], 1e-300 * ev[:, -1]))
     terms = _piecewise(_abs_terms, low, high, tmid, T)
     ev_cond = (terms / np.maximum(np.abs(cp_f), 1e-300)).max(axis=1).tolist()
+    cp_min, cp_max = cp_f.min(axis=1).tolist(), cp_f.max(axis=1).tolist()
+    slack = _between_points(low, high, tmid, T, basis.tlow, basis.thigh).tolist()
+    errs["cp_r"] = _property_error(cp_f, y, T, False)  # overwrites cp_f
     # the jumps of Nasa7Fit.continuity(), for all species at once
     jumps = {}
     for key in ("cp_r", "h_rt", "s_r"):
         fn = getattr(nasa7, key)
         lo, hi = fn(low.T, tmid), fn(high.T, tmid)
         jumps[key] = (np.abs(hi - lo) / np.maximum(np.abs(lo), 1.0)).tolist()
-    cp_min, cp_max = cp_f.min(axis=1).tolist(), cp_f.max(axis=1).tolist()
     tmid_l, bound_l, iter_l, cond_l = tmid.tolist(), res.bound.tolist(), res.iterations.tolist(), cond.tolist()
     cp_e, h_e, s_e, g_e = errs["cp_r"], errs["h_rt"], errs["s_r"], errs["g_rt"]
     jc, jh, js = jumps["cp_r"], jumps["h_rt"], jumps["s_r"]
@@ -977,7 +1005,8 @@ def _results(basis, y, tables, opts, keeps, sd, tmid, auto, res):
         )
         limit = _lp_limit(basis.design(tmid[k], sd), y[k]) if o["with_limit"] else None
         cp_warning = float(o["cp_warning"])
-        warnings = _warnings(fit, cp_e[k], cp_warning, (cp_min[k], cp_max[k]), o["cp_r_ceiling"], cond_l[k])
+        warnings = _warnings(fit, cp_e[k], cp_warning, (cp_min[k], cp_max[k]), o["cp_r_ceiling"], cond_l[k],
+                             slack=slack[k])
         q = _make(
             FitQuality, tmid=tmid_l[k], tmid_auto=bool(auto[k]),
             cp_r=cp_e[k], h_rt=h_e[k], s_r=s_e[k], g_rt=g_e[k],
@@ -992,19 +1021,25 @@ def _results(basis, y, tables, opts, keeps, sd, tmid, auto, res):
     return fits
 
 
-def _warnings(fit, cp_err: PropertyError, threshold, cp_range, ceiling, cond):
+def _warnings(fit, cp_err: PropertyError, threshold, cp_range, ceiling, cond, slack=None):
     """Quality warnings of one fit (strings).
 
     ``cp_range`` is (min, max) of the fitted Cp/R on the fit grid.  Where
     those come near a limit (Cp/R < 5/2, the translational minimum of any gas,
-    or above the ceiling) the fitted polynomial is checked every 0.5 K.
+    or above the ceiling) the fitted polynomial is checked every 0.5 K —
+    unless ``slack``, a bound on how far the fitted Cp/R can go beyond
+    ``cp_range`` between and beyond the grid points (:func:`_between_points`),
+    shows that the check cannot find a value ≤ 0 or above the ceiling's margin.
     """
     out = []
     if cp_err.max_rel > threshold:
         out.append(f"poor fit: max Cp error {100 * cp_err.max_rel:.2f} % at {cp_err.t_rel:g} K "
                    f"exceeds {100 * threshold:.2f} %")
     lo_cp, hi_cp = cp_range
-    if not (lo_cp < 2.5 or (ceiling is not None and hi_cp > ceiling)):
+    near = lo_cp < 2.5 or (ceiling is not None and hi_cp > ceiling)
+    if near and slack is not None:
+        near = lo_cp - slack <= 0 or (ceiling is not None and hi_cp + slack > ceiling * (1 + CLASSICAL_MARGIN))
+    if not near:
         return out + ([f"ill-conditioned fit: design condition number {cond:.3g}"]
                       if cond > CONDITION_WARNING else [])
     Tc = np.linspace(fit.tlow, fit.thigh, int(math.ceil((fit.thigh - fit.tlow) / CHECK_SPACING)) + 1)

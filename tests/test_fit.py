@@ -367,3 +367,21 @@ def test_reported_condition_is_that_of_the_cp_scaled_design(database):
     basis = F._basis(np.ascontiguousarray(table.T).tobytes(), 200.0, 6000.0)
     scaled = basis.design(1000.0, False) / (table.cp / C.R)[:, None]
     assert fit.quality.condition == pytest.approx(np.linalg.cond(scaled), rel=1e-4)
+
+
+def test_between_points_bound_covers_the_dense_check(starter):
+    """The bound that lets _warnings skip its 0.5 K scan really bounds how far the fitted
+    Cp/R goes beyond its grid values (compared with the scan itself, every 0.5 K)."""
+    from pipeline import fit as F
+
+    species, tables, fits = starter
+    extra = [thermo_table(sp) for sp in synthetic_species(40, seed=7)]
+    more = fit_tables(extra, [{"second_derivative": bool(k % 2)} for k in range(40)])
+    for table, fit in list(zip(tables, fits)) + list(zip(extra, more)):
+        keep = (table.T >= fit.tlow) & (table.T <= fit.thigh)
+        T = table.T[keep]
+        on_grid = fit.cp_r(T)
+        slack = F._between_points(np.array([fit.low]), np.array([fit.high]), np.array([fit.tmid]),
+                                  T, fit.tlow, fit.thigh)[0]
+        dense = fit.cp_r(np.arange(fit.tlow, fit.thigh + 0.25, F.CHECK_SPACING))
+        assert dense.max() <= on_grid.max() + slack and dense.min() >= on_grid.min() - slack, fit.name
