@@ -662,15 +662,32 @@ def _property_error(fit, ref, T, relative_floor):
 
 
 def _make(cls, **fields):
-    """An instance of the frozen dataclass ``cls`` with exactly these (already converted) fields.
+    """An instance of the frozen dataclass ``cls`` with these (already converted) fields.
 
-    The same object as ``cls(**fields)`` — these classes have no ``__post_init__`` and every
-    field is given — without the field-by-field ``object.__setattr__`` of a frozen
-    ``__init__``, which is most of the cost of building thousands of them.
+    The same object as ``cls(**fields)`` — the fields not given take their defaults, and
+    these classes have no ``__post_init__`` — without the field-by-field
+    ``object.__setattr__`` of a frozen ``__init__``, which is most of the cost of
+    building thousands of them.
     """
     obj = object.__new__(cls)
-    obj.__dict__.update(fields)
+    d = obj.__dict__
+    for name, value, factory in _defaults(cls):
+        if name not in fields:
+            d[name] = value if factory is None else factory()
+    d.update(fields)
     return obj
+
+
+@functools.lru_cache(maxsize=None)
+def _defaults(cls):
+    """(name, default, default factory) of the fields of dataclass ``cls`` that have one."""
+    out = []
+    for f in dataclasses.fields(cls):
+        if f.default is not dataclasses.MISSING:
+            out.append((f.name, f.default, None))
+        elif f.default_factory is not dataclasses.MISSING:
+            out.append((f.name, None, f.default_factory))
+    return tuple(out)
 
 
 def _piecewise(fn, low, high, tmid, T):
@@ -999,8 +1016,8 @@ def _results(basis, y, tables, opts, keeps, sd, tmid, auto, res):
     fits = []
     for k, (lo_k, hi_k) in enumerate(zip(low.tolist(), high.tolist())):
         o = opts[k]
-        fit = Nasa7Fit(
-            name=tables[k].name, formula=tuple(o["formula"]), tlow=tlow, tmid=tmid_l[k],
+        fit = _make(
+            Nasa7Fit, name=tables[k].name, formula=tuple(o["formula"]), tlow=tlow, tmid=tmid_l[k],
             thigh=thigh, low=tuple(lo_k), high=tuple(hi_k), charge=int(o["charge"]),
         )
         limit = _lp_limit(basis.design(tmid[k], sd), y[k]) if o["with_limit"] else None
