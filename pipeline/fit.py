@@ -863,19 +863,23 @@ def fit_tables(tables, options) -> list[Nasa7Fit]:
         opts.append({**_DEFAULTS, **o})
     groups: dict[tuple, list[int]] = {}
     keeps = []
+    grids: dict[tuple, tuple] = {}  # tables of one build share their grid object: check it once
     for i, (t, o) in enumerate(zip(tables, opts)):
         tlow, thigh = float(o["tlow"]), float(o["thigh"])
         if not tlow < thigh:
             raise ValueError(f"{t.name}: Tlow {tlow:g} K is not below Thigh {thigh:g} K")
-        keep = _grid(t, tlow, thigh)
-        keeps.append(keep)
-        T = np.asarray(t.T, dtype=float)[keep]
-        groups.setdefault((T.tobytes(), tlow, thigh, bool(o["second_derivative"])), []).append(i)
+        known = grids.get((id(t.T), tlow, thigh))
+        if known is None or known[0] is not t.T:
+            keep = _grid(t, tlow, thigh)
+            known = grids[(id(t.T), tlow, thigh)] = (t.T, keep, np.asarray(t.T, dtype=float)[keep].tobytes())
+        keeps.append(known[1])
+        groups.setdefault((known[2], tlow, thigh, bool(o["second_derivative"])), []).append(i)
     out: list = [None] * len(tables)
     for (tb, tlow, thigh, sd), rows in groups.items():
         T = np.frombuffer(tb, dtype=float)
         y = np.stack([np.asarray(tables[i].cp, dtype=float)[keeps[i]] for i in rows]) / C.R
-        bad = [tables[i].name for i, yy in zip(rows, y) if not (np.all(np.isfinite(yy)) and yy.min() > 0)]
+        ok = np.isfinite(y).all(axis=1) & (y.min(axis=1) > 0)
+        bad = [tables[i].name for i, good in zip(rows, ok.tolist()) if not good]
         if bad:
             raise ValueError(f"{', '.join(bad)}: the table's Cp is not positive and finite everywhere")
         fits = _fit_group(_basis(tb, tlow, thigh), y, [tables[i] for i in rows], [opts[i] for i in rows],
