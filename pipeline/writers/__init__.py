@@ -343,22 +343,17 @@ def _evaluate(group: list) -> None:
         for i, text in zip(members, texts):
             group[i].table_csv = text
 
-    # errors of the printed polynomials over each fit grid, within the printed range
+    # errors of the printed polynomials over each fit grid within the printed range: the
+    # largest of each species' points there (zeros elsewhere do not change it: errors are ≥ 0)
     inside = (np.repeat(np.tile((True, False), n), grid_sizes) & (T >= np.repeat([sp.printed.tlow for sp in group], sizes))
               & (T <= np.repeat([sp.printed.thigh for sp in group], sizes)))
-    found = np.add.reduceat(inside, ends - sizes, dtype=np.intp)
-    cp_t, h_t, s_t = data["cp"][inside], data["h"][inside], data["s"][inside]
-    errors = [np.abs(cp[inside] - cp_t) / np.abs(cp_t), np.abs(h[inside] - h_t), np.abs(s[inside] - s_t)]
-    starts = (np.cumsum(found) - found)[found > 0]
-    largest = [np.maximum.reduceat(e, starts).tolist() if len(starts) else [] for e in errors]
-    k = 0
-    for sp, m, jump in zip(group, found.tolist(), continuity.tolist()):
+    found = np.add.reduceat(inside, ends - sizes, dtype=np.intp).tolist()
+    errors = [np.divide(np.abs(cp - data["cp"]), np.abs(data["cp"]), out=np.zeros(len(T)), where=inside),
+              np.where(inside, np.abs(h - data["h"]), 0.0), np.where(inside, np.abs(s - data["s"]), 0.0)]
+    largest = [np.maximum.reduceat(e, ends - sizes).tolist() for e in errors]
+    for i, (sp, jump) in enumerate(zip(group, continuity.tolist())):
         sp.continuity = jump
-        if m:
-            sp.errors = (largest[0][k], largest[1][k], largest[2][k])
-            k += 1
-        else:
-            sp.errors = (None, None, None)
+        sp.errors = (largest[0][i], largest[1][i], largest[2][i]) if found[i] else (None, None, None)
 
 
 @functools.lru_cache(maxsize=64)

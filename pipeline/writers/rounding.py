@@ -138,7 +138,7 @@ def _dot(u, w) -> float:
 def _close(a5, T: float, targets: dict) -> tuple:
     """Printed a1 … a7 from printed a1 … a5: a1 re-fixed for Cp (if Cp is a
     target), a6 and a7 re-derived for H and S at T, all rounded."""
-    return _checker(T, targets)[1]([float(x) for x in a5], "cp" in targets)[0]
+    return _state([float(x) for x in a5], "cp" in targets, _checks(T, targets))[0]
 
 
 def _value(q: str, a, T: float) -> float:
@@ -148,55 +148,49 @@ def _value(q: str, a, T: float) -> float:
     return v + a[5] / T if q == "h" else v + a[6] if q == "s" else v
 
 
-def _meets(a: tuple, T: float, targets: dict) -> bool:
-    """Whether the seven printed coefficients ``a`` meet every target at T (see :func:`_checker`)."""
-    return _checker(T, targets)[0](a)
-
-
-def _checker(T: float, targets: dict):
-    """``meets(a)`` and ``state(a5, refix)`` for ``targets`` at T, with the polynomial
-    parts at T and the tolerance windows worked out once.
-
-    ``meets(a)``: whether the seven coefficients ``a`` give every target within
-    its window, :data:`MARGIN` of its bar relative to max(|target|, 1) (the sums
-    are those of :func:`_value`, written out).  ``state(a5, refix)``: printed
-    a1 … a7 from printed a1 … a5 — a1 re-fixed for Cp if ``refix``, a6 and a7
-    re-derived for H and S at T — the exact a6 and a7, and whether every target
-    is met (the windows compared as ratios).
-    """
+def _checks(T: float, targets: dict) -> tuple:
+    """What :func:`_meets` and :func:`_state` need for ``targets`` at T, worked out once:
+    the polynomial parts of Cp/R, H/RT, S/R at T (:func:`_poly_list`), T, and each
+    target with its tolerance window, :data:`MARGIN` of its bar relative to
+    max(|target|, 1) (Cp with a flag: a target only at Tmid).  A flat tuple of
+    numbers, so that using it allocates nothing."""
     v = _poly_list(T)
-    c0, c1, c2, c3, c4 = v["cp"]
-    h0, h1, h2, h3, h4 = v["h"]
-    s0, s1, s2, s3, s4 = v["s"]
     th, ts = targets["h"], targets["s"]
-    wh, ws = MARGIN * _BAR["h"] * max(abs(th), 1.0), MARGIN * _BAR["s"] * max(abs(ts), 1.0)
     with_cp = "cp" in targets
     tcp = targets["cp"] if with_cp else 0.0
-    wcp = MARGIN * _BAR["cp"] * max(abs(tcp), 1.0)
+    return (*v["cp"], *v["h"], *v["s"], T, th, MARGIN * _BAR["h"] * max(abs(th), 1.0),
+            ts, MARGIN * _BAR["s"] * max(abs(ts), 1.0), with_cp, tcp, MARGIN * _BAR["cp"] * max(abs(tcp), 1.0))
 
-    def meets(a) -> bool:
-        a0, a1, a2, a3, a4 = a[0], a[1], a[2], a[3], a[4]
-        if with_cp and not abs(0.0 + c0 * a0 + c1 * a1 + c2 * a2 + c3 * a3 + c4 * a4 - tcp) <= wcp:
-            return False
-        if not abs(0.0 + h0 * a0 + h1 * a1 + h2 * a2 + h3 * a3 + h4 * a4 + a[5] / T - th) <= wh:
-            return False
-        return abs(0.0 + s0 * a0 + s1 * a1 + s2 * a2 + s3 * a3 + s4 * a4 + a[6] - ts) <= ws
 
-    def state(a5, refix: bool):
-        a0, a1, a2, a3, a4 = a5
-        if refix:
-            a0 = round_sig(a0 + tcp - (0.0 + c0 * a0 + c1 * a1 + c2 * a2 + c3 * a3 + c4 * a4))
-        dh = 0.0 + h0 * a0 + h1 * a1 + h2 * a2 + h3 * a3 + h4 * a4
-        ds = 0.0 + s0 * a0 + s1 * a1 + s2 * a2 + s3 * a3 + s4 * a4
-        x6 = (th - dh) * T
-        x7 = ts - ds
-        a6, a7 = round_sig(x6), round_sig(x7)
-        ok = abs(dh + a6 / T - th) / wh <= 1.0 and abs(ds + a7 - ts) / ws <= 1.0
-        if ok and with_cp:
-            ok = abs(0.0 + c0 * a0 + c1 * a1 + c2 * a2 + c3 * a3 + c4 * a4 + 0.0 - tcp) / wcp <= 1.0
-        return (a0, a1, a2, a3, a4, a6, a7), x6, x7, ok
+def _meets(a, checks: tuple) -> bool:
+    """Whether the seven coefficients ``a`` give every target within its window
+    (:func:`_checks`; the sums are those of :func:`_value`, written out)."""
+    c0, c1, c2, c3, c4, h0, h1, h2, h3, h4, s0, s1, s2, s3, s4, T, th, wh, ts, ws, with_cp, tcp, wcp = checks
+    a0, a1, a2, a3, a4 = a[0], a[1], a[2], a[3], a[4]
+    if with_cp and not abs(0.0 + c0 * a0 + c1 * a1 + c2 * a2 + c3 * a3 + c4 * a4 - tcp) <= wcp:
+        return False
+    if not abs(0.0 + h0 * a0 + h1 * a1 + h2 * a2 + h3 * a3 + h4 * a4 + a[5] / T - th) <= wh:
+        return False
+    return abs(0.0 + s0 * a0 + s1 * a1 + s2 * a2 + s3 * a3 + s4 * a4 + a[6] - ts) <= ws
 
-    return meets, state
+
+def _state(a5, refix: bool, checks: tuple):
+    """Printed a1 … a7 from printed a1 … a5 — a1 re-fixed for Cp if ``refix``, a6
+    and a7 re-derived for H and S at T — the exact a6 and a7, and whether every
+    target of ``checks`` (:func:`_checks`) is met (the windows compared as ratios)."""
+    c0, c1, c2, c3, c4, h0, h1, h2, h3, h4, s0, s1, s2, s3, s4, T, th, wh, ts, ws, with_cp, tcp, wcp = checks
+    a0, a1, a2, a3, a4 = a5
+    if refix:
+        a0 = round_sig(a0 + tcp - (0.0 + c0 * a0 + c1 * a1 + c2 * a2 + c3 * a3 + c4 * a4))
+    dh = 0.0 + h0 * a0 + h1 * a1 + h2 * a2 + h3 * a3 + h4 * a4
+    ds = 0.0 + s0 * a0 + s1 * a1 + s2 * a2 + s3 * a3 + s4 * a4
+    x6 = (th - dh) * T
+    x7 = ts - ds
+    a6, a7 = round_sig(x6), round_sig(x7)
+    ok = abs(dh + a6 / T - th) / wh <= 1.0 and abs(ds + a7 - ts) / ws <= 1.0
+    if ok and with_cp:
+        ok = abs(0.0 + c0 * a0 + c1 * a1 + c2 * a2 + c3 * a3 + c4 * a4 + 0.0 - tcp) / wcp <= 1.0
+    return (a0, a1, a2, a3, a4, a6, a7), x6, x7, ok
 
 
 def _round_sig_array(x: np.ndarray) -> np.ndarray:
@@ -288,12 +282,12 @@ def _nudged(base: list[float], T: float, targets: dict, span: tuple[float, float
             good &= np.abs(value - t) <= 0.9 * MARGIN * _BAR[q] * max(abs(t), 1.0)
         for i in np.flatnonzero(good)[:8]:  # confirm with the exact printed numbers
             a = _close([round_sig(x) for x in A[i]], T, targets)
-            if _meets(a, T, targets):
+            if _meets(a, _checks(T, targets)):
                 return a
     return None
 
 
-def _aimed(base: list[float], T: float, targets: dict, span, start, meets, state) -> tuple | None:
+def _aimed(base: list[float], T: float, targets: dict, span, start, checks: tuple) -> tuple | None:
     """Nudges aimed at the printed grid of a6 (and of a7), tried in pure Python.
 
     A move of k last-digit units of a_j shifts the exact a6 by k·e_j (linear in
@@ -304,8 +298,8 @@ def _aimed(base: list[float], T: float, targets: dict, span, start, meets, state
     second move of a fine coefficient with a1 held.  Candidates are tried in
     order of grid distance and Cp/R change over ``span``; every one is checked
     exactly as printed, and one that fails the check gives way to the next.
-    ``meets`` and ``state`` are :func:`_checker`'s for the targets; ``start`` is
-    ``state(base)`` (a1 re-fixed for Cp when Cp is a target).
+    ``checks`` are :func:`_checks` of the targets; ``start`` is
+    ``_state(base)`` (a1 re-fixed for Cp when Cp is a target).
     """
     cp_fixed = "cp" in targets
     v = _poly_list(T)
@@ -318,18 +312,15 @@ def _aimed(base: list[float], T: float, targets: dict, span, start, meets, state
         return None
     a, x6, x7, _ = start
     g6, g7 = last_digit(a[5]) or 1.0, last_digit(a[6]) or 1.0
-
-    def effect(q, j, follow):  # change of the exact a6 (q='h') or a7 per unit of a_j
-        d = v[q][j] - (v[q][0] * v["cp"][j] if follow else 0.0)
-        return -d * steps[j] * (T if q == "h" else 1.0)
-
-    def moved(a5, j, k):
-        out = list(a5)
-        out[j] = round_sig(a5[j] + k * steps[j])
-        return out
-
-    primary = {q: [(j, effect(q, j, cp_fixed)) for j in knobs] for q in ("h", "s")}
-    held = {q: {j: effect(q, j, False) for j in knobs} for q in ("h", "s")}
+    # change of the exact a6 (in H/RT, times T) and a7 per unit of a_j, with a1 following
+    # so that Cp/R stays (primary, at Tmid) or held (the second, fine move)
+    vc, vh, vs = v["cp"], v["h"], v["s"]
+    held = {"h": {j: -(vh[j] - 0.0) * steps[j] * T for j in knobs}, "s": {j: -(vs[j] - 0.0) * steps[j] * 1.0 for j in knobs}}
+    if cp_fixed:
+        primary = {"h": [(j, -(vh[j] - vh[0] * vc[j]) * steps[j] * T) for j in knobs],
+                   "s": [(j, -(vs[j] - vs[0] * vc[j]) * steps[j] * 1.0) for j in knobs]}
+    else:
+        primary = {q: list(held[q].items()) for q in ("h", "s")}
     fine = sorted(knobs, key=lambda j: abs(held["h"][j]) + abs(held["s"][j]))
     fine_effects = [(j2, q, held[q][j2]) for j2 in fine for q in ("h", "s") if held[q][j2]]
     grid = (("h", x6, g6, round(x6 / g6)), ("s", x7, g7, round(x7 / g7)))
@@ -349,34 +340,36 @@ def _aimed(base: list[float], T: float, targets: dict, span, start, meets, state
             if tried == 24:
                 return None
             tried += 1
-            trial = moved(base, j, k)
-            a, x6t, x7t, ok = state(trial, cp_fixed)
-            if ok and meets(a):
+            trial = list(base)
+            trial[j] = round_sig(base[j] + k * steps[j])
+            a, x6t, x7t, ok = _state(trial, cp_fixed, checks)
+            if ok and _meets(a, checks):
                 return a
-            a5 = list(a[:5])  # a1 as re-fixed; correct the small miss with a1 held
-            sides = {"h": (x6t, g6), "s": (x7t, g7)}
+            sides = {"h": (x6t, g6), "s": (x7t, g7)}  # a1 as re-fixed; correct the small miss with a1 held
             for j2, q, e2 in fine_effects:
                 x, g = sides[q]
                 k2 = round((round(x / g) * g - x) / e2)
                 if not k2 or abs(k2) * reach[j2] > limit:
                     continue
-                a2, _, _, ok2 = state(moved(a5, j2, k2), False)
-                if ok2 and meets(a2):
+                trial2 = list(a[:5])
+                trial2[j2] = round_sig(a[j2] + k2 * steps[j2])
+                a2, _, _, ok2 = _state(trial2, False, checks)
+                if ok2 and _meets(a2, checks):
                     return a2
     return None
 
 
 def _balanced(src, T: float, targets: dict, span, what: str, name: str) -> tuple:
     plain = _round_all(src)
-    meets, state = _checker(T, targets)
-    if meets(plain):  # plain rounding is enough (and printed input stays as it is)
+    checks = _checks(T, targets)
+    if _meets(plain, checks):  # plain rounding is enough (and printed input stays as it is)
         return plain
     base = list(plain[:5])
-    start = state(base, "cp" in targets)
+    start = _state(base, "cp" in targets, checks)
     a = start[0]  # a6, a7 (and a1 for Cp) re-derived from the rounded a1 … a5: _close(base)
-    if meets(a):
+    if _meets(a, checks):
         return a
-    a = _aimed(base, T, targets, span, start, meets, state) or _nudged(base, T, targets, span)
+    a = _aimed(base, T, targets, span, start, checks) or _nudged(base, T, targets, span)
     if a is None:
         raise ValueError(f"{name}: no printed coefficients meet {what} (nudges of up to three last digits tried)")
     return a
