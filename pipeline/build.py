@@ -80,16 +80,20 @@ def _tmid(value: str):
         raise argparse.ArgumentTypeError(f"{value!r} is not a temperature [K] or 'auto'") from None
 
 
-def jobs_value(value: str) -> int | str:
-    if value == "auto":
-        return value
+def positive_whole(text: str, also: str = "") -> int:
+    """argparse type: a whole number ≥ 1 (a usage error, exit 2, otherwise)."""
     try:
-        n = int(value)
+        n = int(text)
     except ValueError:
         n = 0
     if n < 1:
-        raise argparse.ArgumentTypeError(f"{value!r} is not a positive whole number or 'auto'")
+        raise argparse.ArgumentTypeError(f"{text!r} is not a positive whole number{also}")
     return n
+
+
+def jobs_value(value: str) -> int | str:
+    """argparse type of ``--jobs``: a positive whole number or ``auto``."""
+    return value if value == "auto" else positive_whole(value, " or 'auto'")
 
 
 def _shard(value: str) -> tuple[int, int]:
@@ -513,8 +517,6 @@ def _plan(inputs: Inputs, out: Path, cache: Cache | None, *, jobs: int | None, s
           since_last: bool = False, started: float | None = None) -> Plan:
     """What the output folder should contain; ``started`` (time.monotonic()) is when the
     build began, from which the progress bar's one-second delay counts."""
-    from pipeline.settings import load_settings, workers
-
     ahead = _read_ahead(inputs, cache, shard)
     try:
         return _plan_read(inputs, out, cache, ahead, jobs=jobs, shard=shard, keep_going=keep_going,

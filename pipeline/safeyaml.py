@@ -39,6 +39,20 @@ for _tag, _regex, _first in _RESOLVERS:
     SpeciesLoader.add_implicit_resolver(_tag, re.compile(_regex), _first)
 
 
+def _check_key(node, key_node, key, seen) -> None:
+    """Refuse a mapping key that is not a plain value, or that ``seen`` has already."""
+    try:
+        hash(key)
+    except TypeError:
+        raise yaml.constructor.ConstructorError(
+            "while reading a mapping", node.start_mark, "a key must be a plain value", key_node.start_mark,
+        ) from None
+    if key in seen:
+        raise yaml.constructor.ConstructorError(
+            "while reading a mapping", node.start_mark, f"duplicate key {key!r}", key_node.start_mark,
+        )
+
+
 def _construct_mapping(loader, node, deep=False):
     if not isinstance(node, yaml.MappingNode):
         raise yaml.constructor.ConstructorError(
@@ -47,18 +61,7 @@ def _construct_mapping(loader, node, deep=False):
     seen: dict[Any, Any] = {}
     for key_node, value_node in node.value:
         key = loader.construct_object(key_node, deep=deep)
-        try:
-            hash(key)
-        except TypeError:
-            raise yaml.constructor.ConstructorError(
-                "while reading a mapping", node.start_mark, "a key must be a plain value",
-                key_node.start_mark,
-            ) from None
-        if key in seen:
-            raise yaml.constructor.ConstructorError(
-                "while reading a mapping", node.start_mark,
-                f"duplicate key {key!r}", key_node.start_mark,
-            )
+        _check_key(node, key_node, key, seen)
         seen[key] = loader.construct_object(value_node, deep=deep)
     return seen
 
@@ -128,17 +131,7 @@ def _native(loader, node, memo: dict, busy: set) -> Any:
         out = {}
         for key_node, value_node in node.value:
             k = _native(loader, key_node, memo, busy)
-            try:
-                hash(k)
-            except TypeError:
-                raise yaml.constructor.ConstructorError(
-                    "while reading a mapping", node.start_mark, "a key must be a plain value",
-                    key_node.start_mark,
-                ) from None
-            if k in out:
-                raise yaml.constructor.ConstructorError(
-                    "while reading a mapping", node.start_mark, f"duplicate key {k!r}", key_node.start_mark,
-                )
+            _check_key(node, key_node, k, out)
             out[k] = _native(loader, value_node, memo, busy)
     else:
         out = loader.construct_object(node, deep=True)
