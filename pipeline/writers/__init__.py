@@ -139,13 +139,14 @@ def batch_fragments(items) -> list:
     gets its ValueError in place of its fragments; the others are still made.
     """
     out: list = []
+    steps: dict = {}  # the rows of the table step by fit grid (the species of a batch mostly share one)
     for start in range(0, len(items), CHUNK):
         chunk = items[start:start + CHUNK]
         results: list = [None] * len(chunk)
         ready = []
         for k, (species, table, fit, settings) in enumerate(chunk):
             try:
-                ready.append((k, _Species(species, table, fit, settings)))
+                ready.append((k, _Species(species, table, fit, settings, steps)))
             except ValueError as exc:
                 results[k] = exc
         if ready:
@@ -165,7 +166,7 @@ class _Species:
     after :func:`_evaluate` has set ``table_csv``, ``errors`` and ``continuity``,
     :meth:`fragments`."""
 
-    def __init__(self, species, table, fit, settings):
+    def __init__(self, species, table, fit, settings, steps: dict):
         s = self.settings = _for_species(settings, species)
         self.pressure = s.pressure_pa
         formula, charge = tuple(species.formula), int(species.charge)
@@ -177,11 +178,20 @@ class _Species:
         self.record = _record(self.printed, identifier(species.sha256) if species.sha256 else "")
         self.grid = grid = _table_grid(s.tmin, s.tmax, s.table_step)
         # the table step is rows of the fit-grid table when it holds every grid temperature
-        # (the usual case: 10 K grid, 100 K table step), else the species is computed on it
-        T = np.asarray(table.T, dtype=float)
-        idx = np.searchsorted(T, grid)
-        if table.pressure == self.pressure and idx.max(initial=-1) < len(T) and np.array_equal(T[idx], grid):
-            self.rows, self.at_step = idx, None
+        # (the usual case: 10 K grid, 100 K table step), else the species is computed on it;
+        # ``steps`` remembers the rows by fit grid (by identity: it holds the arrays it was made from)
+        key = (id(table.T), id(grid), table.pressure == self.pressure)
+        known = steps.get(key)
+        if known is not None and known[0] is table.T and known[1] is grid:
+            rows = known[2]
+        else:
+            T = np.asarray(table.T, dtype=float)
+            idx = np.searchsorted(T, grid)
+            ok = key[2] and idx.max(initial=-1) < len(T) and np.array_equal(T[idx], grid)
+            rows = idx if ok else None
+            steps[key] = (table.T, grid, rows)
+        if rows is not None:
+            self.rows, self.at_step = rows, None
         else:
             from pipeline.thermo import thermo_table
 

@@ -115,10 +115,10 @@ def yaml_value(value) -> str:
     if kind is list or kind is tuple:
         if value and set(map(type, value)) == _FLOAT:
             return _yaml_floats(value)
-        return "[" + ", ".join(_yaml_float(v) if type(v) is float else yaml_value(v) for v in value) + "]"
+        return "[" + ", ".join([_yaml_float(v) if type(v) is float else yaml_value(v) for v in value]) + "]"
     if kind is dict:
-        return "{" + ", ".join(f"{yaml_key(k)}: {_yaml_float(v) if type(v) is float else yaml_value(v)}"
-                               for k, v in value.items()) + "}"
+        return "{" + ", ".join([f"{_KEYS.get(k) or yaml_key(k)}: {_yaml_float(v) if type(v) is float else yaml_value(v)}"
+                                for k, v in value.items()]) + "}"
     if kind is str:
         return _yaml_string(value)
     if value is None:
@@ -174,20 +174,25 @@ def yaml_block(mapping: dict, indent: int = 0) -> str:
         cp_r: {max_rel: 0.001}
     """
     pad = " " * indent
-    return "\n".join(f"{pad}{yaml_key(k)}: {_yaml_float(v) if type(v) is float else yaml_value(v)}"
-                     for k, v in mapping.items())
+    return "\n".join([f"{pad}{_KEYS.get(k) or yaml_key(k)}: {_yaml_float(v) if type(v) is float else yaml_value(v)}"
+                      for k, v in mapping.items()])
 
 
-@functools.lru_cache(maxsize=4096)
 def yaml_key(key) -> str:
     """A mapping key: identifier-like keys plain, anything else quoted.
 
     >>> yaml_key("max_rel"), yaml_key("Y"), yaml_key("u(G)")
     ('max_rel', '"Y"', '"u(G)"')
     """
-    key = str(key)
-    plain = key.replace("_", "a").isalnum() and key.isascii() and key[:1].isalpha() and len(key) > 1
-    return key if plain and key.lower() not in ("yes", "no", "on", "off", "true", "false", "null") else json.dumps(key)
+    text = str(key)
+    plain = text.replace("_", "a").isalnum() and text.isascii() and text[:1].isalpha() and len(text) > 1
+    text = text if plain and text.lower() not in ("yes", "no", "on", "off", "true", "false", "null") else json.dumps(text)
+    if type(key) is str and len(_KEYS) < 4096:  # the string keys met so far, to look up instead of recompute
+        _KEYS[key] = text
+    return text
+
+
+_KEYS: dict = {}
 
 
 def csv_number(x: float, fmt: str = ".6f") -> str:
