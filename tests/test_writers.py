@@ -86,6 +86,37 @@ def test_published_coefficients_perturbed_meet_the_bars_as_printed(source):
         assert np.max(np.abs(back.cp_r(T) / fit.cp_r(T) - 1)) < 1e-5, f.name
 
 
+def test_aimed_search_tries_the_next_candidate_when_one_fails_its_final_check(monkeypatch):
+    """A candidate that passes the search's window test but fails the exact check as
+    printed gives way to the next one (the search used to give up there).  Simulated by
+    letting the first candidate of each search pass the window test."""
+    from pipeline.writers import rounding
+
+    searches = []
+    aimed, state, meets = rounding._aimed, rounding._state, rounding._meets
+    monkeypatch.setattr(rounding, "_aimed", lambda *args: searches.append(args) or aimed(*args))
+    for fit in small_build()[3] + cantera_fits("gri30.yaml")[:20]:
+        printed_fit(fit)
+    monkeypatch.setattr(rounding, "_aimed", aimed)
+    failed_first = 0
+    for args in searches:
+        answer = aimed(*args)
+        calls = []
+
+        def first_passes(a5, refix, checks):
+            a, x6, x7, ok = state(a5, refix, checks)
+            calls.append(meets(a, checks))
+            return a, x6, x7, ok or len(calls) == 1
+
+        monkeypatch.setattr(rounding, "_state", first_passes)
+        again = aimed(*args)
+        monkeypatch.setattr(rounding, "_state", state)
+        if not calls[0]:  # the first candidate fails as printed: the search must go on to the answer
+            failed_first += 1
+            assert again == answer
+    assert failed_first >= len(searches) // 2 > 0, (failed_first, len(searches))
+
+
 def test_printing_is_idempotent():
     for f in cantera_fits("gri30.yaml"):
         p = printed_fit(f)
@@ -159,6 +190,54 @@ def test_database_file_frame():
 # --------------------------------------------------------------------------
 # determinism
 # --------------------------------------------------------------------------
+
+
+def test_batches_give_the_fragments_of_one_species_at_a_time(monkeypatch):
+    """batch_fragments against species_fragments species by species: chunks of 3, species with
+    and without uncertainty columns, tables on the fit grid and computed apart (1 atm; a
+    25 K table step), a range narrower than the table, and a species that cannot be written
+    (a 19-character name), which gets its ValueError while the others are made."""
+    import dataclasses
+
+    import pipeline.writers as writers
+
+    settings, species, tables, fits, _ = small_build()
+    items = [(sp, t, f, settings) for sp, t, f in zip(species, tables, fits)]
+    items.append((dataclasses.replace(species[1], name="X" * 19), tables[1], fits[1], settings))
+    items += [(sp, t, f, settings.replace(pressure="atm")) for sp, t, f, _ in items[:3]]
+    items += [(sp, t, f, settings.replace(table_step=25.0)) for sp, t, f, _ in items[3:6]]
+    items.append((species[2], tables[2], dataclasses.replace(fits[2], tlow=300.0, thigh=5000.0), settings))
+    monkeypatch.setattr(writers, "CHUNK", 3)
+    batch = writers.batch_fragments(items)
+    assert len(batch) == len(items)
+    for item, got in zip(items, batch):
+        try:
+            one = species_fragments(*item)
+        except ValueError as exc:
+            assert isinstance(got, ValueError) and str(got) == str(exc)
+        else:
+            assert got == one, item[0].name
+    assert sum(isinstance(got, ValueError) for got in batch) == 1
+
+
+def test_fitted_columns_and_jump_are_those_of_the_printed_polynomials():
+    """The fit columns of the tables and the jump at Tmid in REPORT.md print what
+    Nasa7Fit evaluates for the printed coefficients (the writers evaluate many species at
+    once, point by point with each point's range)."""
+    import pandas as pd
+
+    from pipeline.writers.formats import csv_number, md_number
+
+    settings, species, _, fits, frags = small_build()
+    for sp, fit, fr in zip(species, fits, frags):
+        p = printed_fit(fit)
+        lines = fr["table_csv"].splitlines()
+        df = pd.read_csv(io.StringIO(fr["table_csv"]), dtype=str)
+        T = np.array([float(line.split(",")[0]) for line in lines[1:]])
+        assert list(df["Cp fit [J/mol/K]"]) == [csv_number(x) for x in p.cp(T)]
+        assert list(df["S fit [J/mol/K]"]) == [csv_number(x) for x in p.s(T)]
+        assert list(df["H-H298 fit [kJ/mol]"]) == [csv_number(x) for x in (p.h(T) - float(p.h(T_REF))) / 1e3]
+        assert f"| {md_number(max(p.continuity().values()), '.1e')} |" in fr["report_row"]
 
 
 def test_two_renders_are_byte_identical_and_order_free():

@@ -2,9 +2,12 @@
 
 Two calls, made by :mod:`pipeline.build`:
 
-``species_fragments(species, table, fit, settings) -> dict[str, str]``
-    Everything one species contributes to ``output/``, rendered (the
-    expensive, cacheable part).  Keys:
+``batch_fragments([(species, table, fit, settings), ...]) -> list``
+    For each species, everything it contributes to ``output/``, rendered
+    (the expensive, cacheable part), or the ValueError that keeps it from
+    being written; the array work is done for many species at once.
+    ``species_fragments(species, table, fit, settings)`` is the same for one
+    species (it raises the ValueError).  The fragments are a dict, keys:
 
     ``name``
         the record name (the database is ordered by it);
@@ -27,8 +30,9 @@ Two calls, made by :mod:`pipeline.build`:
 
 The coefficients printed are those of :func:`pipeline.writers.rounding.printed_fit`
 (rounded, then re-balanced so that the printed numbers keep the fit's
-constraints); the templates in ``pipeline/templates`` only format.  The
-formats are described in ``docs/format.md``.
+constraints).  :mod:`pipeline.writers.formats` only formats: a function per
+species fragment, and the filters of the three document templates in
+``pipeline/templates``.  The formats are described in ``docs/format.md``.
 """
 
 from __future__ import annotations
@@ -46,7 +50,8 @@ from pipeline.thermo import T_REF
 from pipeline.writers import formats
 from pipeline.writers.rounding import printed_fit
 
-__all__ = ["species_fragments", "assemble", "printed_fit", "record_text", "record_elements", "FORMAT_VERSION", "table_path"]
+__all__ = ["species_fragments", "batch_fragments", "assemble", "printed_fit", "record_text", "record_elements",
+           "FORMAT_VERSION", "table_path"]
 
 #: version of the thermo.yaml format (docs/format.md); bump on incompatible change
 FORMAT_VERSION = 1
@@ -355,8 +360,9 @@ def _evaluate(group: list) -> None:
 
     # errors of the printed polynomials over each fit grid within the printed range: the
     # largest of each species' points there (zeros elsewhere do not change it: errors are ≥ 0)
-    inside = (np.repeat(np.tile((True, False), n), grid_sizes) & (T >= np.repeat([sp.printed.tlow for sp in group], sizes))
-              & (T <= np.repeat([sp.printed.thigh for sp in group], sizes)))
+    inside = np.repeat(np.tile((True, False), n), grid_sizes)
+    inside &= T >= np.repeat([sp.printed.tlow for sp in group], sizes)
+    inside &= T <= np.repeat([sp.printed.thigh for sp in group], sizes)
     found = np.add.reduceat(inside, ends - sizes, dtype=np.intp).tolist()
     errors = [np.divide(np.abs(cp - data["cp"]), np.abs(data["cp"]), out=np.zeros(len(T)), where=inside),
               np.where(inside, np.abs(h - data["h"]), 0.0), np.where(inside, np.abs(s - data["s"]), 0.0)]

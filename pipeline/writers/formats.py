@@ -117,8 +117,9 @@ def yaml_value(value) -> str:
             return _yaml_floats(value)
         return "[" + ", ".join([_yaml_float(v) if type(v) is float else yaml_value(v) for v in value]) + "]"
     if kind is dict:
-        return "{" + ", ".join([f"{_KEYS.get(k) or yaml_key(k)}: {_yaml_float(v) if type(v) is float else yaml_value(v)}"
-                                for k, v in value.items()]) + "}"
+        items = [f"{_KEYS.get(k) or yaml_key(k)}: {_yaml_float(v) if type(v) is float else yaml_value(v)}"
+                 for k, v in value.items()]
+        return "{" + ", ".join(items) + "}"
     if kind is str:
         return _yaml_string(value)
     if value is None:
@@ -186,7 +187,8 @@ def yaml_key(key) -> str:
     """
     text = str(key)
     plain = text.replace("_", "a").isalnum() and text.isascii() and text[:1].isalpha() and len(text) > 1
-    text = text if plain and text.lower() not in ("yes", "no", "on", "off", "true", "false", "null") else json.dumps(text)
+    if not plain or text.lower() in ("yes", "no", "on", "off", "true", "false", "null"):
+        text = json.dumps(text)
     if type(key) is str and len(_KEYS) < 4096:  # the string keys met so far, to look up instead of recompute
         _KEYS[key] = text
     return text

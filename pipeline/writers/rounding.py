@@ -315,7 +315,8 @@ def _aimed(base: list[float], T: float, targets: dict, span, start, checks: tupl
     # change of the exact a6 (in H/RT, times T) and a7 per unit of a_j, with a1 following
     # so that Cp/R stays (primary, at Tmid) or held (the second, fine move)
     vc, vh, vs = v["cp"], v["h"], v["s"]
-    held = {"h": {j: -(vh[j] - 0.0) * steps[j] * T for j in knobs}, "s": {j: -(vs[j] - 0.0) * steps[j] * 1.0 for j in knobs}}
+    held = {"h": {j: -(vh[j] - 0.0) * steps[j] * T for j in knobs},
+            "s": {j: -(vs[j] - 0.0) * steps[j] * 1.0 for j in knobs}}
     if cp_fixed:
         primary = {"h": [(j, -(vh[j] - vh[0] * vc[j]) * steps[j] * T) for j in knobs],
                    "s": [(j, -(vs[j] - vs[0] * vc[j]) * steps[j] * 1.0) for j in knobs]}
