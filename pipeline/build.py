@@ -266,11 +266,11 @@ def _apply_flags(species, flags: dict):
     return dataclasses.replace(species, fit=dataclasses.replace(species.fit, **over))
 
 
-def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list[dict], list[dict]]:
+def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list[dict], list[dict], str | None]:
     """Compute the cache entries of ``items`` = [(key, display path, bytes, YAML read ahead or None)].
 
-    Returns (entries, error diagnostics as dicts).  The entries are stored in
-    the cache (when ``cache_root`` is given) as one pack.
+    Returns (entries, error diagnostics as dicts, the name of the cache pack they
+    were stored in, or None): with ``cache_root``, the entries go to the cache as one pack.
     """
     from pipeline.fit import fit_options, fit_tables
     from pipeline.species import _Checker, check_ranges, parse_species
@@ -354,14 +354,13 @@ def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list
         entry["files"] = {rel: sha256_bytes(b) for rel, b in extra.items()}
         entry["_extra"] = extra
         entries.append(entry)
+    pack = None
     if cache is not None:
         try:
             pack = cache.store_entries([(e, e["_extra"]) for e in entries])
         except OSError:
-            pack = None  # a cache that cannot be written only costs time
-        for e in entries:
-            e["_pack"] = pack
-    return entries, [d.as_dict() for d in errors]
+            pass  # a cache that cannot be written only costs time
+    return entries, [d.as_dict() for d in errors], pack
 
 
 #: fewest species in a chunk (the fit is batched across a chunk's species)
@@ -390,35 +389,38 @@ def _chunks(todo: list, jobs: int) -> list[list]:
 
 
 def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progress):
-    """Run :func:`_compute` over ``todo`` in ``jobs`` processes, in chunks (for the progress bar)."""
+    """Run :func:`_compute` over ``todo`` in ``jobs`` processes, in chunks (for the progress bar).
+
+    Returns (entries, error diagnostics as dicts, names of the cache packs written).
+    """
     entries: list[dict] = []
     errors: list[dict] = []
+    packs: set[str] = set()
     if not todo:
-        return entries, errors
-    n = len(todo)
-    jobs = max(1, min(jobs, n // 8 or 1))
+        return entries, errors, packs
+    jobs = max(1, min(jobs, len(todo) // 8 or 1))
     chunks = _chunks(todo, jobs)
-    done = 0
+    pool = None
     if jobs == 1:
-        for chunk in chunks:
-            e, err = _compute(chunk, settings, flags, cache_root)
-            entries += e
-            errors += err
-            done += len(chunk)
-            progress.update(done)
-        return entries, errors
-    import multiprocessing
+        results = (_compute(chunk, settings, flags, cache_root) for chunk in chunks)
+    else:
+        import multiprocessing
 
-    ctx = multiprocessing.get_context("fork" if sys.platform != "win32" else "spawn")
-    with ctx.Pool(jobs) as pool:
-        results = [pool.apply_async(_compute, (chunk, settings, flags, cache_root)) for chunk in chunks]
-        for chunk, r in zip(chunks, results):
-            e, err = r.get()
+        pool = multiprocessing.get_context("fork" if sys.platform != "win32" else "spawn").Pool(jobs)
+        results = (r.get() for r in [pool.apply_async(_compute, (chunk, settings, flags, cache_root))
+                                     for chunk in chunks])
+    try:
+        done = 0
+        for chunk, (e, err, pack) in zip(chunks, results):
             entries += e
             errors += err
+            packs.add(pack)
             done += len(chunk)
             progress.update(done)
-    return entries, errors
+    finally:
+        if pool is not None:
+            pool.terminate()  # as leaving ``with Pool()`` does; every result is in by now
+    return entries, errors, packs - {None}
 
 
 # --------------------------------------------------------------------------
@@ -562,13 +564,12 @@ def _plan_read(inputs: Inputs, out: Path, cache: Cache | None, ahead, *, jobs, s
     todo = [(key, disp, data, docs.get(sha)) for key, disp, data, sha in todo]
     bar = Progress(len(todo), "statherm build", enabled=verbosity > 0, force=progress, start=started)
     try:
-        entries, errors = _compute_all(todo, settings, inputs.flags,
-                                       cache.root.as_posix() if cache else None,
-                                       workers(jobs or settings.jobs), bar)
+        entries, errors, plan.fresh_packs = _compute_all(
+            todo, settings, inputs.flags, cache.root.as_posix() if cache else None,
+            workers(jobs or settings.jobs), bar)
     finally:
         bar.close()
     plan.errors = [Diagnostic(**d) for d in errors]
-    plan.fresh_packs = {e.pop("_pack", None) for e in entries} - {None}
     for e in entries:
         by_file[e["file"]] = e
         if verbosity > 1:
