@@ -610,7 +610,9 @@ def _plan_read(inputs: Inputs, out: Path, cache: Cache | None, ahead, *, jobs, s
         extra = e.get("_extra")
         for rel, sha in e.get("files", {}).items():
             files[rel] = extra[rel] if extra else cache.blob(sha)
-    files[PROVENANCE] = _provenance_record(inputs, files, left_out=bad)
+    shas = {rel: sha256_bytes(data) for rel, data in files.items()}
+    files[PROVENANCE] = _provenance_record(inputs, files, shas, left_out=bad)
+    shas[PROVENANCE] = sha256_bytes(files[PROVENANCE])
     plan.files = files
     plan.manifest = {
         "format": FORMAT,
@@ -623,7 +625,7 @@ def _plan_read(inputs: Inputs, out: Path, cache: Cache | None, ahead, *, jobs, s
         "flags": inputs.flags,
         "inputs": {disp: sha for _, disp, _, sha in inputs.files},
         "entries": {f: keys[f] for f in by_file if f not in bad},
-        "outputs": {rel: [0, 0, sha256_bytes(b)] for rel, b in files.items()},
+        "outputs": {rel: [0, 0, shas[rel]] for rel in files},
     }
     return plan
 
@@ -893,12 +895,19 @@ def _normalised(rel: str, data: bytes) -> bytes:
     return data
 
 
-def _provenance_record(inputs: Inputs, files: dict[str, bytes], left_out=frozenset()) -> bytes:
+def _provenance_record(inputs: Inputs, files: dict[str, bytes], shas: dict[str, str],
+                       left_out=frozenset()) -> bytes:
     """``provenance.json``: tool version, code fingerprint, settings, the species files in
     the output (not those ``left_out`` by ``--keep-going``) and the sha256 of every other
-    output file (deterministic JSON, no paths, no times)."""
+    output file (deterministic JSON, no paths, no times).  ``shas`` holds the sha256 of
+    each file's bytes; a file :func:`_normalised` changes is hashed again."""
     import json
 
+    hashes = {}
+    for rel, data in sorted(files.items()):
+        if rel != PROVENANCE:
+            norm = _normalised(rel, data)
+            hashes[rel] = shas[rel] if norm is data else sha256_bytes(norm)
     doc = {
         "format": "statherm-provenance",
         "format_version": 1,
@@ -907,8 +916,7 @@ def _provenance_record(inputs: Inputs, files: dict[str, bytes], left_out=frozens
         "settings_file": inputs.settings_sha,
         "flags": inputs.flags,
         "species": {name: sha for name, disp, _, sha in inputs.files if disp not in left_out},
-        "files": {rel: sha256_bytes(_normalised(rel, data)) for rel, data in sorted(files.items())
-                  if rel != PROVENANCE},
+        "files": hashes,
     }
     return (json.dumps(doc, indent=1, sort_keys=True, ensure_ascii=False) + "\n").encode("utf-8")
 
