@@ -375,6 +375,31 @@ def test_whole_table_formatting_prints_every_cell_as_csv_number():
         assert csv_rows(X, formats) == expected, X
 
 
+def test_tables_of_many_species_are_cut_where_each_begins():
+    """csv_tables against csv_number cell by cell: runs of columns with equal decimals
+    (worked on together), the last column's decimals also met before it (its words end in
+    a newline), columns of one, two and three integer groups side by side, in row and in
+    column order (the writers pass the transpose of their column-major table)."""
+    from pipeline.writers.formats import csv_number, csv_tables
+
+    rng = np.random.default_rng(11)
+    formats = [".2f", ".6f", ".6f", ".6f", ".1f", ".1f", ".6f", ".3f", ".6f", ".6f"]
+    header = [f"c{j}" for j in range(len(formats))]
+    for trial in range(300):
+        counts = [int(c) for c in rng.integers(1, 8, int(rng.integers(1, 6)))]
+        shape = (sum(counts), len(formats))
+        magnitude = 10.0 ** rng.integers(-8, 8, len(formats))  # per column: some need a second or third group
+        X = rng.uniform(-1, 1, shape) * magnitude
+        if trial % 3 == 0:
+            X[rng.random(shape) < 0.3] = 0.0
+        if trial % 2:
+            X = np.ascontiguousarray(X.T).T
+        rows = [",".join(csv_number(v, f) for v, f in zip(row, formats)) + "\n" for row in X.tolist()]
+        cuts = np.cumsum([0] + counts).tolist()
+        expected = [",".join(header) + "\n" + "".join(rows[a:b]) for a, b in zip(cuts[:-1], cuts[1:])]
+        assert csv_tables(header, X, formats, counts) == expected, (X, counts)
+
+
 def test_report_has_one_row_per_species_in_name_order():
     settings, species, _, _, frags = small_build()
     report = assemble(frags, settings)["REPORT.md"].decode()

@@ -215,7 +215,7 @@ def csv_rows(values, formats) -> str:
     prints each cell (no negative zero), made for the whole table at once.
 
     Fixed-point formats ``".Nf"`` (N = 1 … 6) of values below 1e8 in magnitude
-    are made with array operations (:func:`_fixed_point_rows`); anything else
+    are made with array operations (:func:`_fixed_point_tables`); anything else
     with one ``%`` operation for the whole table.
 
     >>> print(csv_rows(np.array([[298.15, -1.0e-8, 0.0078125], [300.0, 1234.5678915, -2.5]]),
@@ -224,17 +224,27 @@ def csv_rows(values, formats) -> str:
     300.00,1234.567892,-2.500000
     """
     X = np.asarray(values, dtype=float)
-    formats = tuple(formats)
+    return "".join(_csv_texts(X, tuple(formats), [X.shape[0]] if X.ndim else [1]))
+
+
+def _csv_texts(X, formats: tuple, counts) -> list[str]:
+    """:func:`csv_rows` of ``X``, cut into the texts of ``counts[0]``, ``counts[1]``, … consecutive rows."""
     if X.ndim != 2 or X.shape[1] != len(formats) or not all(_fixed_point(f) for f in formats):
-        return "".join(",".join(csv_number(v, f) for v, f in zip(row, formats)) + "\n" for row in X)
-    if X.size:
-        decimals = tuple(int(f[1]) for f in formats)
-        if min(decimals) >= 1 and max(decimals) <= 6 and np.abs(X).max() < 1e8:  # False for nan, inf
-            return _fixed_point_rows(X, decimals)
-    text = _rows_format(formats, X.shape[0]) % tuple((X + 0.0).ravel().tolist())
-    if "-0." in text:  # perhaps a tiny negative printed as −0
-        text = _NEGATIVE_ZERO.sub(r"\1", text)
-    return text
+        text = "".join(",".join(csv_number(v, f) for v, f in zip(row, formats)) + "\n" for row in X)
+    else:
+        if X.size:
+            decimals = tuple(int(f[1]) for f in formats)
+            if min(decimals) >= 1 and max(decimals) <= 6 and X.max() < 1e8 and X.min() > -1e8:  # False for nan
+                C = X.T
+                return _fixed_point_tables(C if C.flags.c_contiguous else np.ascontiguousarray(C), decimals, counts)
+        text = _rows_format(formats, X.shape[0]) % tuple((X + 0.0).ravel().tolist())
+        if "-0." in text:  # perhaps a tiny negative printed as −0
+            text = _NEGATIVE_ZERO.sub(r"\1", text)
+    if len(counts) == 1:
+        return [text]
+    row_ends = np.flatnonzero(np.frombuffer(text.encode("ascii"), dtype=np.uint8) == 10) + 1  # after each newline
+    cuts = np.concatenate(([0], row_ends))[np.cumsum([0, *counts])].tolist()
+    return [text[a:b] for a, b in zip(cuts[:-1], cuts[1:])]
 
 
 #: a whole cell that prints zero with a minus sign (the sign is dropped, as csv_number does)
@@ -258,67 +268,120 @@ _UNPADDED, _EMPTY = 1000, 3000
 
 @functools.lru_cache(maxsize=16)
 def _words(decimals: tuple):
-    """The 4-byte words :func:`_fixed_point_rows` spells cells with (NUL-padded), and
-    per column the first word of its ".ddd" block and of its "ddd," block."""
+    """The 4-byte words :func:`_fixed_point_tables` spells cells with (NUL-padded), and per
+    column j the first word of its decimals block: with ``decimals[j]`` = N ≤ 2 one word
+    ".dd" + separator, else two, ".ddd" and the last N − 3 digits + separator (the
+    separator a comma, a newline after the last column).  The words of a block are
+    numbered by the first three decimals (the first three of six: the decimals are
+    counted in millionths), and the second word of a block follows 1000 words later."""
     words = [f"{i:03d}" for i in range(1000)] + [str(i) for i in range(1000)] + [f"-{i}" for i in range(1000)] + [""]
     first: dict = {}
-    point, tail = [], []
+    blocks = []
     for j, d in enumerate(decimals):
         sep = "\n" if j == len(decimals) - 1 else ","
-        for key, spell in ((("point", d), lambda i: f".{i:03d}"[:1 + min(d, 3)]),
-                           (("tail", d, sep), lambda i: f"{i:03d}"[:max(d - 3, 0)] + sep)):
-            if key not in first:
-                first[key] = len(words)
-                words += [spell(i) for i in range(1000)]
-        point.append(first[("point", d)])
-        tail.append(first[("tail", d, sep)])
+        if (d, sep) not in first:
+            first[(d, sep)] = len(words)
+            if d <= 2:
+                words += [f".{i:03d}"[:1 + d] + sep for i in range(1000)]
+            else:
+                words += [f".{i:03d}" for i in range(1000)] + [f"{i:03d}"[:d - 3] + sep for i in range(1000)]
+        blocks.append(first[(d, sep)])
     lut = np.frombuffer("".join(w.ljust(4, "\0") for w in words).encode("ascii"), dtype=np.uint32)
-    return lut, np.array(point, dtype=float), np.array(tail, dtype=float)
+    return lut, tuple(blocks)
 
 
-def _fixed_point_rows(X, decimals: tuple) -> str:
-    """:func:`csv_rows` of ``X`` (|X| < 1e8, finite) with ``decimals[j]`` (1 … 6) decimals
-    in column j, by array operations.
+@functools.lru_cache(maxsize=64)
+def _runs(decimals: tuple) -> tuple:
+    """The columns in runs of equal decimals: (first column, end, decimals)."""
+    runs, j = [], 0
+    while j < len(decimals):
+        k = j
+        while k < len(decimals) and decimals[k] == decimals[j]:
+            k += 1
+        runs.append((j, k, decimals[j]))
+        j = k
+    return tuple(runs)
 
-    Each cell is rounded to the integer round(x·10^N) exactly — the product is
-    split into its double and its rounding error (Dekker 1971), so the
-    rounding is that of the binary value, ties to even, as ``"%.Nf"`` does —
-    and spelt in words of up to four characters looked up by the digit groups
-    of that integer: the leading group of the integer part unpadded and with
-    the sign, the groups after it padded, a third group only if some cell
-    reaches a million.  Every step is exact: the integers stay below 1e15 < 2**53.
+
+def _fixed_point_tables(C, decimals: tuple, counts) -> list[str]:
+    """:func:`csv_rows` of the table whose column j is ``C[j]`` (|C| < 1e8, finite), with
+    ``decimals[j]`` (1 … 6) decimals in column j, by array operations; cut into the texts
+    of ``counts[0]``, ``counts[1]``, … consecutive rows.
+
+    Each cell is rounded to the integer round(x·10^N) exactly — the product is split
+    into its double and its rounding error (Dekker 1971), so the rounding is that of
+    the binary value, ties to even, as ``"%.Nf"`` does — and spelt in words of up to
+    four characters (:func:`_words`) looked up by the digit groups of that integer:
+    the integer part in groups of three, the leading group unpadded and with the sign,
+    a second and third group only in a column where some cell reaches a thousand or a
+    million; then the decimals in one or two words ending in the separator.  Every step
+    is exact: the integers stay below 1e14 < 2**53.  The columns of equal decimals are
+    worked on together, with the power of ten a scalar.
 
     Reference: T. J. Dekker, "A floating-point technique for extending the
     available precision", Numer. Math. 18, 224–242 (1971).
     """
-    dec = np.array(decimals)
-    scale = _POW10[dec]
-    p = X * scale
-    n = np.rint(p)  # nearest integer to p, ties to even
-    r = p - n  # exact
-    if np.any(np.abs(r) == 0.5):  # p halfway: the product's error decides (used there only: |X| ≥ 5e-7, no underflow)
-        c = 134217729.0 * X  # Dekker's split: X = xh + xl, 26 bits each; xh·scale, xl·scale exact
-        xh = c - (c - X)
-        err = (xh * scale - p) + (X - xh) * scale  # X·scale = p + err exactly
-        n += (r == 0.5) & (err > 0.0)
-        n -= (r == -0.5) & (err < 0.0)
-    lead = _UNPADDED + 1000.0 * (n < 0.0)  # "0" … "999", or "-0" … "-999"; a cell printing as zero has n = 0
-    a = np.abs(n)
-    ip = np.floor(a / scale)  # integer part, and the decimals as a six-digit integer
-    fp = (a - ip * scale) * _POW10[6 - dec]
-    g2 = np.floor(ip / 1e6)
-    rest = ip - g2 * 1e6
-    g1 = np.floor(rest / 1e3)
-    g0 = rest - g1 * 1e3
-    f1 = np.floor(fp / 1e3)
-    lut, point, tail = _words(decimals)
-    mid = g1 > 0.0
-    groups = [np.where(mid, lead + g1, _EMPTY), np.where(mid, g0, lead + g0)]
-    big = g2 > 0.0
-    if big.any():
-        groups = [np.where(big, lead + g2, _EMPTY), np.where(big, g1, groups[0]), np.where(big | mid, g0, lead + g0)]
-    words = np.stack(groups + [point + f1, tail + (fp - f1 * 1e3)], axis=-1).astype(np.intp)
-    return lut.take(words).tobytes().translate(None, b"\0").decode("ascii")
+    rows = C.shape[1]
+    lut, blocks = _words(decimals)
+    work = []  # per run: first column, end, its int part, its leading word (sign included), its decimal words
+    groups = []  # words of the integer part per column
+    for j0, j1, d in _runs(decimals):
+        B = C[j0:j1]
+        scale = _POW10[d]
+        p = B * scale
+        n = np.rint(p)  # nearest integer to p, ties to even
+        r = np.subtract(p, n, out=p)  # exact
+        if np.abs(r).max() == 0.5:  # p halfway: the product's error decides (used there only: |C| ≥ 5e-7, no underflow)
+            c = 134217729.0 * B  # Dekker's split: B = bh + bl, 26 bits each; bh·scale, bl·scale exact
+            bh = c - (c - B)
+            err = (bh * scale - B * scale) + (B - bh) * scale  # B·scale = p + err exactly
+            n += (r == 0.5) & (err > 0.0)
+            n -= (r == -0.5) & (err < 0.0)
+        lead = (n < 0.0) * 1000.0 + _UNPADDED  # "0" … "999", or "-0" … "-999"; a cell printing as zero has n = 0
+        a = np.abs(n, out=n)
+        ip = np.floor(a / scale)  # integer part, and the decimals in millionths
+        fp = a - ip * scale
+        if d < 6:
+            fp *= _POW10[6 - d]
+        f1 = np.floor(fp / 1e3)
+        work.append((j0, j1, d, ip, lead, f1, fp - f1 * 1e3))
+        groups += (0 if x < 1e3 else 1 if x < 1e6 else 2 for x in ip.max(axis=1).tolist())
+    widths = [g + (2 if d <= 2 else 3) for g, d in zip(groups, decimals)]
+    ends = np.cumsum(widths).tolist()
+    W = np.empty((ends[-1], rows))  # the words of the cells, row by row of W, column by column of the CSV
+    for j0, j1, d, ip, lead, f1, f0 in work:
+        # the columns of the run in stretches of equal words: their words are rows of W at a stride
+        j = j0
+        while j < j1:
+            k = j
+            while k < j1 and widths[k] == widths[j] and blocks[k] == blocks[j]:
+                k += 1
+            w, g, at = widths[j], groups[j], ends[j] - widths[j]
+            lj, ipj = lead[j - j0:k - j0], ip[j - j0:k - j0]
+            if g == 0:
+                np.add(lj, ipj, out=W[at:at + w * (k - j):w])
+            else:
+                g2 = np.floor(ipj / 1e6)
+                rest = ipj - g2 * 1e6
+                g1 = np.floor(rest / 1e3)
+                g0 = rest - g1 * 1e3
+                if g == 1:
+                    mid = g1 > 0.0
+                    W[at:at + w * (k - j):w] = np.where(mid, lj + g1, _EMPTY)
+                    W[at + 1:at + w * (k - j):w] = np.where(mid, g0, lj + g0)
+                else:
+                    big, mid = g2 > 0.0, g1 > 0.0
+                    W[at:at + w * (k - j):w] = np.where(big, lj + g2, _EMPTY)
+                    W[at + 1:at + w * (k - j):w] = np.where(big, g1, np.where(mid, lj + g1, _EMPTY))
+                    W[at + 2:at + w * (k - j):w] = np.where(big | mid, g0, lj + g0)
+            np.add(f1[j - j0:k - j0], blocks[j], out=W[at + g + 1:at + w * (k - j):w])
+            if d > 2:
+                np.add(f0[j - j0:k - j0], blocks[j] + 1000, out=W[at + g + 2:at + w * (k - j):w])
+            j = k
+    raw = lut.take(W.astype(np.intp)).T.tobytes()
+    size = 4 * ends[-1]
+    cuts = np.cumsum([0, *counts]).tolist()
+    return [raw[size * a:size * b].translate(None, b"\0").decode("ascii") for a, b in zip(cuts[:-1], cuts[1:])]
 
 
 def md_number(x: float, fmt: str = ".3f") -> str:
@@ -435,19 +498,15 @@ def report_row(name: str, formula: str, dhf298: float, s298: float, cp298: float
 def csv_tables(header, values, formats, counts) -> list[str]:
     """The texts of several ``tables/NAME.csv`` with the same columns, made at once: each
     the column names joined by commas, then its ``counts[i]`` consecutive rows of
-    ``values`` (:func:`csv_rows` of the whole of ``values``, cut at the rows).
+    ``values`` (:func:`csv_rows` of the whole of ``values``, cut at the rows; the fast path
+    cuts the bytes before their padding is taken out, finding no newline).
 
     >>> csv_tables(["T [K]", "Cp [J/mol/K]"], np.array([[298.15, 20.786], [300.0, 20.786], [298.15, 29.1]]),
     ...            [".2f", ".6f"], [2, 1])
     ['T [K],Cp [J/mol/K]\\n298.15,20.786000\\n300.00,20.786000\\n', 'T [K],Cp [J/mol/K]\\n298.15,29.100000\\n']
     """
     head = ",".join(header) + "\n"
-    text = csv_rows(values, formats)
-    if len(counts) == 1:
-        return [head + text]
-    row_ends = np.flatnonzero(np.frombuffer(text.encode("ascii"), dtype=np.uint8) == 10) + 1  # after each newline
-    cuts = np.concatenate(([0], row_ends))[np.cumsum([0, *counts])].tolist()
-    return [head + text[a:b] for a, b in zip(cuts[:-1], cuts[1:])]
+    return [head + text for text in _csv_texts(np.asarray(values, dtype=float), tuple(formats), counts)]
 
 
 #: the number formats the document templates use
