@@ -339,7 +339,7 @@ def _normal(P, Cb, buf, mask, MqT, d, mm=None):
     Least Squares Problems, SIAM 1996, §2.9).
 
     Rows last: every entry of the small matrices is one contiguous vector over
-    the rows, so the 5 × 5 → p × p algebra (and :func:`_solve`) is a few dozen
+    the rows, so the 5 × 5 → p × p algebra (and the solve of :class:`_Pass`) is a few dozen
     element-wise vector operations instead of R tiny matrix products, and each
     row's arithmetic is the same whatever the other rows.
     """
@@ -376,35 +376,6 @@ def _normal(P, Cb, buf, mask, MqT, d, mm=None):
     return G, rhs
 
 
-def _solve(G, b):
-    """Solve the symmetric positive definite systems G x = b, rows last: G (p, p, R), b (p, R).
-
-    Cholesky factorisation G = L Lᵀ of the matrix bordered by bᵀ (right-looking,
-    one outer-product update per column, each a vector operation over the rows),
-    which yields L⁻¹b as its last row, then back substitution.  A pivot that
-    rounding made non-positive is floored at 1e-300 (the caller's ridge keeps
-    it positive in exact arithmetic).  Reference: G. H. Golub and C. F. Van
-    Loan, *Matrix Computations*, 4th ed. (2013), §4.2.
-    """
-    p, _, R = G.shape
-    A = np.empty((p + 1, p, R))
-    A[:p] = G
-    A[p] = b
-    for k in range(p):
-        d = np.sqrt(np.maximum(A[k, k], 1e-300))
-        A[k, k] = d
-        col = A[k + 1:, k]
-        col /= d
-        if k + 1 < p:
-            A[k + 1:, k + 1:] -= col[:, None] * col[None, : p - k - 1]
-    x = A[p].copy()  # L⁻¹ b
-    for j in range(p - 1, -1, -1):
-        x[j] /= A[j, j]
-        if j:
-            x[:j] -= A[j, :j] * x[j]
-    return x
-
-
 @dataclass
 class _Lawson:
     alpha: np.ndarray  # (R, 5) Chebyshev coefficients of the low-range Cp/R
@@ -435,6 +406,113 @@ def _tiled(a, b, out=None):
         return np.matmul(a.reshape(R // TILE, TILE, k), b).reshape(R, b.shape[1])
     np.matmul(a.reshape(R // TILE, TILE, k), b, out=out.reshape(R // TILE, TILE, b.shape[1]))
     return out
+
+
+#: rows of the transposed products in :class:`_Pass`: the 15 entries Σ a c cᵀ (and one zero
+#: column), then Σ a d c; for the normal matrix, its low block and the high-range parts
+_GG = 16
+_SYM_FLAT = _SYM.ravel()
+_FM_ROWS = np.r_[_SYM_FLAT, _GG + np.arange(5)]
+
+
+class _Pass:
+    """Work space of the Lawson passes over ``slots`` rows: every array of one iteration
+    preallocated, and the views the normal equations and the solve use made once, so that
+    a pass is about a hundred array operations whatever the number of rows.
+
+    :meth:`step` forms the normal equations as :func:`_normal` does (the same operations in
+    the same order, so the same bits), adds the ridge and solves the symmetric positive
+    definite systems, rows last: Cholesky factorisation G = L Lᵀ of the matrix bordered by
+    the right-hand side (right-looking, one outer-product update per column, each a vector
+    operation over the rows), which yields L⁻¹b as its last row, then back substitution.
+    A pivot that rounding made non-positive is floored at 1e-300 (the ridge keeps it
+    positive in exact arithmetic).  Reference: G. H. Golub and C. F. Van Loan, *Matrix
+    Computations*, 4th ed. (2013), §4.2.
+    """
+
+    def __init__(self, slots, npad, nq, MqT):
+        p = 5 + nq
+        self.R, self.p, self.nq, self.MqT = slots, p, nq, MqT
+        self.buf = np.empty((2 * slots, npad))  # [a; a m], then the fitted low and high parts
+        self.buf3 = self.buf.reshape(2 * slots // TILE, TILE, npad)
+        self.XY = np.empty((2 * slots, _GG + 8))  # Σ a P | Σ a d c, rows [unmasked; masked]
+        self.XY3 = self.XY.reshape(2 * slots // TILE, TILE, _GG + 8)
+        self.XT = np.empty((_GG + 8, 2 * slots))
+        self.A = np.empty((p + 1, p, slots))  # the normal matrix bordered by the right-hand side
+        self.diag = self.A[:p].reshape(p * p, slots)[:: p + 1]
+        self.trace = np.empty(slots)
+        self.FH = np.empty((6, nq, slots))  # Fm Mqᵀ (5, nq) over Mq gm (1, nq)
+        self.T1 = np.empty((6, nq, 5, slots))
+        self.T2 = np.empty((nq, 5, nq, slots))
+        A = self.A
+        self.chol = []
+        for k in range(p):
+            col = A[k + 1:, k]
+            upd = (col[:, None], col[None, : p - k - 1], A[k + 1:, k + 1:],
+                   np.empty((p - k, p - k - 1, slots))) if k + 1 < p else None
+            self.chol.append((A[k, k], col, upd))
+        self.x = np.empty((p, slots))
+        self.xt = np.empty((p, slots))
+        self.back = [(self.x[j], A[j, j], A[j, :j], self.x[:j], self.xt[:j]) for j in range(p - 1, -1, -1)]
+        self.AB = np.empty((2 * slots, 5))  # alpha over beta
+        self.AB3 = self.AB.reshape(2 * slots // TILE, TILE, 5)
+        self.TB = np.empty((nq, 5, slots))
+        self.BT = np.empty((5, slots))
+
+    def step(self, P, Cb, CT, w, inv2, mask, dres, theta):
+        """One Lawson solve: θ += δ from the weighted normal equations at weights ``w``
+        (see :func:`_normal`); returns (fitted (2R, npad) low over high parts, alpha over beta)."""
+        R, p, MqT, A = self.R, self.p, self.MqT, self.A
+        buf = self.buf
+        a, am = buf[:R], buf[R:]
+        np.multiply(w, inv2, out=a)
+        np.multiply(a, mask, out=am)
+        np.matmul(self.buf3, P, out=self.XY3[:, :, :_GG])
+        np.multiply(a, dres, out=a)
+        np.multiply(a, mask, out=am)
+        np.matmul(self.buf3, Cb, out=self.XY3[:, :, _GG:])
+        XT = self.XT
+        np.copyto(XT, self.XY.T)
+        A[:5, :5] = XT[_SYM_FLAT, :R].reshape(5, 5, R)
+        FH = self.FH
+        np.multiply(XT[_FM_ROWS, R:].reshape(6, 1, 5, R), MqT[None], out=self.T1)
+        np.sum(self.T1, axis=2, out=FH)
+        A[:5, 5:] = FH[:5]
+        A[5:p, :5] = FH[:5].transpose(1, 0, 2)
+        np.multiply(MqT[:, :, None], FH[None, :5], out=self.T2)
+        np.sum(self.T2, axis=1, out=A[5:p, 5:])
+        A[p, :5] = XT[_GG : _GG + 5, :R]
+        A[p, 5:] = FH[5]
+        # the ridge of _lawson's iteration, at round-off level
+        trace = self.trace
+        np.sum(self.diag, axis=0, out=trace)
+        trace *= 1e-15
+        trace += 1e-300
+        self.diag += trace
+        # Cholesky of the bordered matrix, then back substitution
+        for d, col, upd in self.chol:
+            np.maximum(d, 1e-300, out=d)
+            np.sqrt(d, out=d)
+            np.divide(col, d, out=col)
+            if upd is not None:
+                c1, c2, blk, tmp = upd
+                np.multiply(c1, c2, out=tmp)
+                np.subtract(blk, tmp, out=blk)
+        x = self.x
+        np.copyto(x, A[p])
+        for xj, d, row, head, tmp in self.back:
+            np.divide(xj, d, out=xj)
+            if tmp.shape[0]:
+                np.multiply(row, xj, out=tmp)
+                np.subtract(head, tmp, out=head)
+        theta += x
+        AB = self.AB
+        np.copyto(AB[:R], theta[:5].T)
+        np.multiply(theta[5:, None, :], MqT, out=self.TB)
+        np.sum(self.TB, axis=0, out=self.BT)
+        np.copyto(AB[R:], self.BT.T)
+        np.matmul(self.AB3, CT, out=self.buf3)
+        return buf, AB
 
 
 def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None, owner=None, incumbent=None):
@@ -529,28 +607,13 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None, owner=None, incumbent=No
         fewer than tail_rows are still alive (their state, unpadded, is returned)."""
         row, alive, ys, inv, inv2, mask, MqT, w, dres, theta, best, best_ab, bnd, it = (st[k] for k in STATE)
         slots = row.size
-        buf = np.empty((2 * slots, npad))  # work space
+        work = _Pass(slots, npad, nq, MqT)
         ar = np.empty((slots, npad))
         wa = np.empty((slots, npad))
         while True:
-            np.multiply(w, inv2, out=buf[:slots])
-            G, rhs = _normal(P, Cb, buf, mask, MqT, dres, mm=_tiled)
-            # a ridge at round-off level keeps degenerate rows (exact fits, zero weights) solvable
-            diag = G.reshape(-1, slots)[:: G.shape[0] + 1]  # a view of the diagonals (p, slots)
-            trace = diag[0].copy()
-            for k in range(1, diag.shape[0]):
-                trace += diag[k]
-            trace *= 1e-15
-            trace += 1e-300
-            diag += trace
-            theta += _solve(G, rhs)
-            ab = np.empty((2 * slots, 5))  # alpha (slots, 5) over beta (slots, 5)
-            ab[:slots] = theta[:5].T
-            beta_t = theta[5] * MqT[0]
-            for k in range(1, nq):
-                beta_t += theta[5 + k] * MqT[k]
-            ab[slots:] = beta_t.T
-            fitted = _tiled(ab, CT, out=buf)
+            # weighted normal equations, a ridge at round-off level (it keeps degenerate rows,
+            # exact fits or zero weights, solvable), the solve, and the fitted values
+            fitted, ab = work.step(P, Cb, CT, w, inv2, mask, dres, theta)
             np.subtract(ys, fitted[:slots], out=dres)
             high = np.multiply(fitted[slots:], mask, out=fitted[slots:])
             dres -= high
@@ -559,8 +622,8 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None, owner=None, incumbent=No
             err = ar.max(axis=1)
             np.multiply(w, ar, out=wa)
             den = wa.sum(axis=1)
-            np.multiply(wa, ar, out=buf[:slots])
-            bound = buf[:slots].sum(axis=1) / np.where(den > 0, den, 1.0)
+            np.multiply(wa, ar, out=fitted[:slots])
+            bound = fitted[:slots].sum(axis=1) / np.where(den > 0, den, 1.0)
             it += 1
             better = err < best
             np.copyto(best, err, where=better)
