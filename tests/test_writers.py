@@ -240,6 +240,51 @@ def test_fitted_columns_and_jump_are_those_of_the_printed_polynomials():
         assert f"| {md_number(max(p.continuity().values()), '.1e')} |" in fr["report_row"]
 
 
+def test_floats_written_by_repr_only_where_that_is_their_yaml():
+    """plain_floats (which lets the writers format many floats by one "%r" format) is true
+    only for lists where "%r" of every float is yaml_value of it; random magnitudes and
+    the floats that differ (negative zero, a repr without a point, inf, nan)."""
+    from pipeline.writers.formats import plain_floats, yaml_value
+
+    rng = random.Random(8)
+    special = [-0.0, 0.0, 1e-05, 2e+20, 1e16, 1.5e16, float("inf"), -float("inf"), float("nan"), 5e-324, -1e-300]
+    seen = {True: 0, False: 0}
+    for _ in range(3000):
+        values = [rng.uniform(-1, 1) * 10.0 ** rng.randint(-30, 30) for _ in range(rng.randint(1, 6))]
+        if rng.random() < 0.5:
+            values[rng.randrange(len(values))] = rng.choice(special)
+        same = ", ".join("%r" % v for v in values) == ", ".join(yaml_value(v) for v in values)
+        assert plain_floats(values) == same, values
+        seen[same] += 1
+    assert min(seen.values()) > 500
+
+
+def test_fit_quality_block_is_that_of_as_dict():
+    """The writers format a FitQuality's fields directly; the text, the warnings and the
+    Tmid flag are those of FitQuality.as_dict() through yaml_block, also for the floats
+    that "%r" writes otherwise (negative zero, no point, inf, nan), numpy numbers, a
+    limit that is set, and several warnings."""
+    import dataclasses
+
+    import pipeline.writers as writers
+    from pipeline.writers.formats import yaml_block
+
+    _, _, _, fits, _ = small_build()
+    variants = []
+    for k, fit in enumerate(fits):
+        q = fit.quality
+        variants.append(q)
+        variants.append(dataclasses.replace(q, minimax_limit=q.minimax_bound * 0.5, warnings=("one | two", "three"),
+                                            tmid_auto=not q.tmid_auto))
+        odd = [-0.0, 1e-05, float("inf"), float("nan"), np.float64(2.5e-7), 3e20][k % 6]
+        variants.append(dataclasses.replace(q, continuity_h_rt=odd, cp_r=dataclasses.replace(q.cp_r, t_abs=odd)))
+        variants.append(dataclasses.replace(q, iterations=np.int64(q.iterations), second_derivative=np.bool_(True)))
+    for q in variants:
+        d = q.as_dict()
+        assert writers._quality(q) == (yaml_block(d, 4), d["warnings"], d["tmid_auto"]), q
+    assert writers._quality(None) == ("", [], False)
+
+
 def test_two_renders_are_byte_identical_and_order_free():
     settings, species, tables, fits, frags = small_build()
     again = [species_fragments(sp, t, f, settings) for sp, t, f in zip(species, tables, fits)]

@@ -181,7 +181,7 @@ class _Species:
             fit = dataclasses.replace(fit, name=species.name, formula=formula, charge=charge)
         self.species, self.table, self.fit = species, table, fit
         self.printed = printed_fit(fit)
-        self.quality = fit.quality.as_dict() if hasattr(fit.quality, "as_dict") else {}
+        self.quality = _quality(fit.quality)
         self.record = _record(self.printed, identifier(species.sha256) if species.sha256 else "")
         self.grid = grid = _table_grid(s.tmin, s.tmax, s.table_step)
         # the table step is rows of the fit-grid table when it holds every grid temperature
@@ -212,8 +212,8 @@ class _Species:
         self.table_csv = self.errors = self.continuity = None
 
     def fragments(self) -> dict[str, str]:
-        species, table, fit, printed, s, quality = self.species, self.table, self.fit, self.printed, self.settings, \
-            self.quality
+        species, table, fit, printed, s = self.species, self.table, self.fit, self.printed, self.settings
+        quality, warnings, tmid_auto = self.quality
         uncertainty = report_u = None
         if self.u is not None:
             from pipeline.uncertainty import report_values, structured
@@ -235,7 +235,6 @@ class _Species:
             species_file=_file_name(species.path) if species.path else "", sha256=species.sha256,
             version=__version__, model=_model_key(s), pressure_pa=float(self.pressure),
         )
-        warnings = list(quality.get("warnings", []))
         note = ""
         if report_u is not None:
             from pipeline.uncertainty import exceeds
@@ -255,13 +254,88 @@ class _Species:
             name=species.name,
             formula=" ".join(f"{el}{n}" for el, n in record_elements(species.formula, species.charge)),
             dhf298=table.dhf298 / 1e3, s298=table.s298, cp298=table.cp298, tmid=printed.tmid,
-            tmid_auto=bool(quality.get("tmid_auto", False)), cp_error=cp_error, h_error=h_error, s_error=s_error,
+            tmid_auto=tmid_auto, cp_error=cp_error, h_error=h_error, s_error=s_error,
             continuity=self.continuity, u_g298=report_u["g298"] if report_u else None,
             u_g1000=report_u["g1000"] if report_u else None,
             plot=plot, warnings="; ".join(w.replace("|", "/") for w in warnings),
         )
         return {"name": species.name, "record": self.record, "yaml": entry, "report_row": row,
                 "report_note": note, "table_csv": self.table_csv}
+
+
+def _quality(q) -> tuple[str, list, bool]:
+    """The fit metrics ``q`` as the writers use them: the lines of the ``fit_quality``
+    block of thermo.yaml (indented by four; "" for none), the warnings, and whether Tmid
+    was searched — what ``formats.yaml_block(q.as_dict(), 4)``, ``as_dict()["warnings"]``
+    and ``["tmid_auto"]`` give (``as_dict`` is the definition; test_writers checks that
+    the two agree).  For a FitQuality whose numbers are floats, the text is one ``%``
+    format of its fields (the floats by ``%r``, :func:`formats.plain_floats`) instead of
+    the dict and a node per value."""
+    if not hasattr(q, "as_dict"):
+        return "", [], False
+    from pipeline.fit import FitQuality, PropertyError
+
+    if type(q) is FitQuality:
+        values = _getter(FitQuality)(q)
+        kinds = tuple(map(type, values))
+        plan = _QUALITY_PLANS.get(kinds) or _quality_plan(kinds)
+        if plan[0] is not None:
+            fmt, others, errors = plan
+            args = list(values)
+            for i in others:  # written as nodes (bool, int, None, the warnings)
+                args[i] = formats.yaml_value(args[i])
+            fields = _getter(PropertyError)
+            for i in errors:  # from the last, so that the indices before stay put
+                args[i:i + 1] = fields(args[i])
+            args.append(float(q.limit_ratio))
+            floats = [a for a in args if type(a) is float]
+            if len(floats) + len(others) == len(args) and formats.plain_floats(floats):
+                return fmt % tuple(args), list(q.warnings), bool(q.tmid_auto)
+    d = q.as_dict()
+    return (formats.yaml_block(d, 4) if d else ""), list(d.get("warnings", [])), bool(d.get("tmid_auto", False))
+
+
+def _quality_plan(kinds: tuple) -> tuple:
+    """For FitQuality field values of the types ``kinds``: the ``%`` format of the
+    block (None if a field is of a kind not covered), the fields written as nodes, and
+    the PropertyError fields (from the last)."""
+    from pipeline.fit import FitQuality, PropertyError
+
+    lines, others, errors = [], [], []
+    for i, (f, kind) in enumerate(zip(dataclasses.fields(FitQuality), kinds)):
+        key = "    " + formats.yaml_key(f.name).replace("%", "%%") + ": "
+        if kind is float:
+            lines.append(key + "%r")
+        elif kind is PropertyError:
+            errors.append(i)
+            lines.append(key + "{" + ", ".join(formats.yaml_key(e.name).replace("%", "%%") + ": %r"
+                                               for e in dataclasses.fields(PropertyError)) + "}")
+        elif kind in (bool, int, str, tuple, type(None)):
+            others.append(i)
+            lines.append(key + "%s")
+        else:
+            lines = None
+            break
+    if lines is not None:
+        lines.append("    limit_ratio: %r")
+    plan = ("\n".join(lines) if lines is not None else None, tuple(others), tuple(errors[::-1]))
+    if len(_QUALITY_PLANS) < 64:
+        _QUALITY_PLANS[kinds] = plan
+    return plan
+
+
+_QUALITY_PLANS: dict = {}
+_GETTERS: dict = {}
+
+
+def _getter(cls):
+    """``operator.attrgetter`` of the fields of dataclass ``cls``, in order (made once per class)."""
+    get = _GETTERS.get(cls)
+    if get is None:
+        import operator
+
+        get = _GETTERS[cls] = operator.attrgetter(*(f.name for f in dataclasses.fields(cls)))
+    return get
 
 
 #: the columns of tables/NAME.csv before any uncertainty columns: table, printed fit, fit − table

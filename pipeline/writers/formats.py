@@ -167,6 +167,18 @@ def _yaml_floats(values) -> str:
 _FLOAT = {float}
 
 
+def plain_floats(values: list) -> bool:
+    """Whether ``"%r" % x`` is :func:`yaml_value` of each float of ``values`` (a list of
+    floats): true unless one is inf, nan, negative zero or a repr without a point
+    (``1e-05``); found in one ``repr`` of the list.
+
+    >>> plain_floats([2.5, 1.5e-08, -3.0]), plain_floats([1e-05]), plain_floats([-0.0]), plain_floats([1e400])
+    (True, False, False, False)
+    """
+    text = repr(values)
+    return "n" not in text and text.count(".") == len(values) and "-0.0," not in text and "-0.0]" not in text
+
+
 def yaml_block(mapping: dict, indent: int = 0) -> str:
     """A mapping as YAML block lines ``key: flow value`` at ``indent`` spaces (no final newline).
 
@@ -427,14 +439,15 @@ def record(name: str, identifier: str, elements, phase: str, tlow: float, tmid: 
 
 
 def species_entry(name: str, composition: dict, charge: int, phase: str, molar_mass: float, tmid: float,
-                  ranges: list[dict], reference_state: dict, quality: dict, uncertainty: dict | None,
+                  ranges: list[dict], reference_state: dict, quality: dict | str, uncertainty: dict | None,
                   sources, species_file: str, sha256: str, version: str, model: dict, pressure_pa: float) -> str:
     """One species' entry in the ``species:`` list of thermo.yaml (docs/format.md), ending in a newline.
 
     Top-level keys in block style, each value a flow node (:func:`yaml_value`);
     ``ranges`` (dicts with ``tmin``, ``tmax``, ``coefficients``) and ``sources``
     as block lists; ``quality`` and ``uncertainty`` as nested blocks
-    (:func:`yaml_block`) — ``fit_quality: {}`` when there is none, no
+    (:func:`yaml_block`; ``quality`` may also be given as its block's lines, already
+    made) — ``fit_quality: {}`` when there is none, no
     ``uncertainty`` key when there is none.
 
     >>> print(species_entry("AR", {"Ar": 1}, 0, "G", 0.039948, 1000.0,
@@ -465,7 +478,9 @@ def species_entry(name: str, composition: dict, charge: int, phase: str, molar_m
     out += [f"  - {{tmin: {y(r['tmin'])}, tmax: {y(r['tmax'])}, coefficients: {y(r['coefficients'])}}}\n"
             for r in ranges]
     out.append(f"  reference_state: {y(reference_state)}\n")
-    out.append(f"  fit_quality:\n{yaml_block(quality, 4)}\n" if quality else "  fit_quality: {}\n")
+    if quality and type(quality) is not str:
+        quality = yaml_block(quality, 4)
+    out.append(f"  fit_quality:\n{quality}\n" if quality else "  fit_quality: {}\n")
     if uncertainty:
         out.append(f"  uncertainty:\n{yaml_block(uncertainty, 4)}\n")
     out.append("  sources:\n")
