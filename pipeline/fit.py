@@ -238,15 +238,53 @@ class _Basis:
             coef = Chebyshev.basis(j, domain=[self.xl, self.xh]).convert(kind=Polynomial).coef
             K[: coef.size, j] = coef
         self.K = K
+        self._q = {}  # qmap of one Tmid (it depends on the range only: shared with the subsets)
+        self._subsets = {}
+        self._padded = None
 
     def _u(self, T):
         return (2 * np.asarray(T, dtype=float) / _X - self.xl - self.xh) / (self.xh - self.xl)
 
     def subset(self, idx) -> "_Basis":
-        b = object.__new__(_Basis)
-        b.__dict__.update(self.__dict__)
-        b.T, b.u, b.C, b.P = self.T[idx], self.u[idx], self.C[idx], self.P[idx]
+        """The basis on the grid points ``idx`` (made once per index set)."""
+        idx = np.asarray(idx)
+        key = idx.tobytes()
+        b = self._subsets.get(key)
+        if b is None:
+            b = object.__new__(_Basis)
+            b.__dict__.update(self.__dict__)
+            b.T, b.u, b.C, b.P = self.T[idx], self.u[idx], self.C[idx], self.P[idx]
+            b._subsets, b._padded = {}, None
+            self._subsets[key] = b
         return b
+
+    def padded(self):
+        """(npad, P, Cb, CT) for the Lawson passes: the grid padded to a multiple of 16 points
+        with inert rows (zeros), ``P`` (npad, 16), ``Cb`` (npad, 8), ``CT`` (5, npad)."""
+        if self._padded is None:
+            n = self.T.size
+            npad = -(-n // 16) * 16
+            P = np.zeros((npad, 16))
+            P[:n, :15] = self.P
+            Cb = np.zeros((npad, 8))
+            Cb[:n, :5] = self.C
+            CT = np.ascontiguousarray(Cb[:, :5].T)
+            for a in (P, Cb, CT):
+                a.flags.writeable = False
+            self._padded = (npad, P, Cb, CT)
+        return self._padded
+
+    def qmaps(self, values, second_derivative):
+        """:meth:`qmap` of each of ``values`` (V,), computed once per value and option."""
+        sd = bool(second_derivative)
+        q = self._q
+        keys = [(v, sd) for v in np.asarray(values, dtype=float).tolist()]
+        missing = list(dict.fromkeys(k[0] for k in keys if k not in q))
+        if missing:
+            for v, m in zip(missing, self.qmap(missing, sd)):
+                m.flags.writeable = False
+                q[(v, sd)] = m
+        return np.stack([q[k] for k in keys]) if keys else self.qmap(np.zeros(0), sd)
 
     def mask(self, tmid):
         """(R, n) 1.0 where the high range applies (T > Tmid), else 0.0."""
@@ -548,14 +586,9 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None, owner=None, incumbent=No
     if R == 0:
         return res
     # grid padded to a multiple of 16 with inert points (1/y = 0, weight 0); 16 and 8 columns
-    npad = -(-n // 16) * 16
-    P = np.zeros((npad, 16))
-    P[:n, :15] = basis.P
-    Cb = np.zeros((npad, 8))
-    Cb[:n, :5] = basis.C
-    CT = np.ascontiguousarray(Cb[:, :5].T)
+    npad, P, Cb, CT = basis.padded()
     values, which = np.unique(tmid, return_inverse=True)  # a few Tmid values, many rows
-    Mq_v = basis.qmap(values, sd)  # (V, nq, 5)
+    Mq_v = basis.qmaps(values, sd)  # (V, nq, 5)
     nq = Mq_v.shape[1]
     mask_v = np.zeros((values.size, npad))
     mask_v[:, :n] = basis.mask(values)
@@ -608,37 +641,54 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None, owner=None, incumbent=No
         row, alive, ys, inv, inv2, mask, MqT, w, dres, theta, best, best_ab, bnd, it = (st[k] for k in STATE)
         slots = row.size
         work = _Pass(slots, npad, nq, MqT)
-        ar = np.empty((slots, npad))
-        wa = np.empty((slots, npad))
+        low, high = work.buf[:slots], work.buf[slots:]
+        best_ab3 = best_ab.reshape(2, slots, 5)
+        own = owner[row] if owner is not None else None
+        # iterations of the slots: the least and the largest (Python ints, one step per pass)
+        it_lo, it_hi = int(it.min()), int(it.max())
+        ftol = 1.0 + tol
         while True:
             # weighted normal equations, a ridge at round-off level (it keeps degenerate rows,
-            # exact fits or zero weights, solvable), the solve, and the fitted values
-            fitted, ab = work.step(P, Cb, CT, w, inv2, mask, dres, theta)
-            np.subtract(ys, fitted[:slots], out=dres)
-            high = np.multiply(fitted[slots:], mask, out=fitted[slots:])
+            # exact fits or zero weights, solvable), the solve, and the fitted values (in
+            # work.buf: low-range part over high-range part)
+            _, ab = work.step(P, Cb, CT, w, inv2, mask, dres, theta)
+            np.subtract(ys, low, out=dres)
+            np.multiply(high, mask, out=high)
             dres -= high
+            ar, wa = high, low  # work space from here on
             np.multiply(dres, inv, out=ar)
             np.abs(ar, out=ar)  # |r_i|, the relative error
             err = ar.max(axis=1)
             np.multiply(w, ar, out=wa)
             den = wa.sum(axis=1)
-            np.multiply(wa, ar, out=fitted[:slots])
-            bound = fitted[:slots].sum(axis=1) / np.where(den > 0, den, 1.0)
+            np.multiply(wa, ar, out=w)  # w is not needed any more: work space
+            bound = w.sum(axis=1) / np.where(den > 0, den, 1.0)
             it += 1
+            it_lo += 1
+            it_hi += 1
             better = err < best
             np.copyto(best, err, where=better)
-            np.copyto(best_ab, ab, where=np.concatenate([better, better])[:, None])
+            np.copyto(best_ab3, ab.reshape(2, slots, 5), where=better[None, :, None])
             np.maximum(bnd, bound, out=bnd)
             np.sqrt(ar, out=ar)
             np.multiply(wa, ar, out=w)  # w ← w |r|^1.5 / Σ w |r|^1.5
             w /= np.maximum(w.sum(axis=1, keepdims=True), 1e-300)
-            finished = alive & (((it >= 2) & ((best <= (1.0 + tol) * bnd) | (best <= 1e-14)))
-                                | (it >= max_iter))
-            if owner is not None:
-                own = owner[row]
-                least = known.copy()
-                np.minimum.at(least, own[alive], best[alive])
-                finished |= alive & (it >= 2) & (bound > least[own] * (1 + _TIE_REL) + _TIE_ABS)
+            if it_hi < 2:  # the bound is trusted from the second iteration on
+                if it_hi < max_iter:
+                    continue
+                finished = alive & (it >= max_iter)
+            else:
+                finished = best <= ftol * bnd
+                finished |= best <= 1e-14
+                if owner is not None:
+                    least = known.copy()
+                    np.minimum.at(least, own[alive], best[alive])
+                    finished |= bound > least[own] * (1 + _TIE_REL) + _TIE_ABS
+                if it_lo < 2:
+                    finished &= it >= 2
+                if it_hi >= max_iter:
+                    finished |= it >= max_iter
+                finished &= alive
             rf = np.flatnonzero(finished)
             if not rf.size:
                 continue
@@ -1053,8 +1103,26 @@ class _SearchState:
         self.weights[sel] = all_w[pick[sel]]
 
 
+#: species per block of :func:`_results`: its arrays on the full grid stay small (in the caches)
+RESULT_BLOCK = 64
+
+
 def _results(basis, y, tables, opts, keeps, sd, tmid, auto, res):
-    """Nasa7Fit objects with their FitQuality."""
+    """Nasa7Fit objects with their FitQuality, in blocks of RESULT_BLOCK species (every
+    value is computed row by row, so the blocks do not change it)."""
+    S = y.shape[0]
+    if S <= RESULT_BLOCK:
+        return _results_block(basis, y, tables, opts, keeps, sd, tmid, auto, res)
+    fits = []
+    for b0 in range(0, S, RESULT_BLOCK):
+        b = slice(b0, min(S, b0 + RESULT_BLOCK))
+        part = _Lawson(res.alpha[b], res.beta[b], res.error[b], res.bound[b], res.weights[b], res.iterations[b])
+        fits.extend(_results_block(basis, y[b], tables[b], opts[b], keeps[b], sd, tmid[b], auto[b], part))
+    return fits
+
+
+def _results_block(basis, y, tables, opts, keeps, sd, tmid, auto, res):
+    """Nasa7Fit objects with their FitQuality (see :func:`_results`)."""
     T = basis.T
     S = y.shape[0]
     dhf = np.array([t.dhf298 for t in tables])
@@ -1071,7 +1139,7 @@ def _results(basis, y, tables, opts, keeps, sd, tmid, auto, res):
         "s_r": _property_error(s_f, s_t, T, True),
     }
     # conditioning: the 1/Cp-scaled design matrix (unit weights), and evaluation of the monomials
-    MqT = np.ascontiguousarray(basis.qmap(tmid, sd).transpose(1, 2, 0))
+    MqT = np.ascontiguousarray(basis.qmaps(tmid, sd).transpose(1, 2, 0))
     buf = np.empty((2 * S, T.size))
     np.divide(1.0, y * y, out=buf[:S])  # a = w/y², w = 1
     G0, _ = _normal(basis.P, basis.C, buf, basis.mask(tmid), MqT, y)
