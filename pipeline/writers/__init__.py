@@ -268,9 +268,9 @@ def _quality(q) -> tuple[str, list, bool]:
     block of thermo.yaml (indented by four; "" for none), the warnings, and whether Tmid
     was searched — what ``formats.yaml_block(q.as_dict(), 4)``, ``as_dict()["warnings"]``
     and ``["tmid_auto"]`` give (``as_dict`` is the definition; test_writers checks that
-    the two agree).  For a FitQuality whose numbers are floats, the text is one ``%``
-    format of its fields (the floats by ``%r``, :func:`formats.plain_floats`) instead of
-    the dict and a node per value."""
+    the two agree).  For a FitQuality the text is one format of its fields, the floats
+    converted together (:func:`formats.float_texts`), instead of the dict and a node
+    per value."""
     if not hasattr(q, "as_dict"):
         return "", [], False
     from pipeline.fit import FitQuality, PropertyError
@@ -280,48 +280,63 @@ def _quality(q) -> tuple[str, list, bool]:
         kinds = tuple(map(type, values))
         plan = _QUALITY_PLANS.get(kinds) or _quality_plan(kinds)
         if plan[0] is not None:
-            fmt, others, errors = plan
-            args = list(values)
-            for i in others:  # written as nodes (bool, int, None, the warnings)
-                args[i] = formats.yaml_value(args[i])
+            fmt, order, floats_at, errors_at, others_at = plan
+            floats = [values[i] for i in floats_at]
             fields = _getter(PropertyError)
-            for i in errors:  # from the last, so that the indices before stay put
-                args[i:i + 1] = fields(args[i])
-            args.append(float(q.limit_ratio))
-            floats = [a for a in args if type(a) is float]
-            if len(floats) + len(others) == len(args) and formats.plain_floats(floats):
-                return fmt % tuple(args), list(q.warnings), bool(q.tmid_auto)
+            for i in errors_at:
+                floats += fields(values[i])
+            floats.append(float(q.limit_ratio))
+            if set(map(type, floats)) == _FLOAT:
+                texts = formats.float_texts(floats) + [formats.yaml_value(values[i]) for i in others_at]
+                return fmt % order(texts), list(q.warnings), bool(q.tmid_auto)
     d = q.as_dict()
     return (formats.yaml_block(d, 4) if d else ""), list(d.get("warnings", [])), bool(d.get("tmid_auto", False))
 
 
+_FLOAT = {float}
+
+
 def _quality_plan(kinds: tuple) -> tuple:
-    """For FitQuality field values of the types ``kinds``: the ``%`` format of the
-    block (None if a field is of a kind not covered), the fields written as nodes, and
-    the PropertyError fields (from the last)."""
+    """For FitQuality field values of the types ``kinds``: the ``%`` format of the block,
+    the getter that puts the texts (the floats first, then the nodes) in its order, the
+    float fields, the PropertyError fields and the fields written as nodes; the format
+    None if a field is of a kind not covered."""
     from pipeline.fit import FitQuality, PropertyError
 
-    lines, others, errors = [], [], []
-    for i, (f, kind) in enumerate(zip(dataclasses.fields(FitQuality), kinds)):
-        key = "    " + formats.yaml_key(f.name).replace("%", "%%") + ": "
+    floats_at, errors_at, others_at = [], [], []
+    for i, kind in enumerate(kinds):
         if kind is float:
-            lines.append(key + "%r")
+            floats_at.append(i)
         elif kind is PropertyError:
-            errors.append(i)
-            lines.append(key + "{" + ", ".join(formats.yaml_key(e.name).replace("%", "%%") + ": %r"
-                                               for e in dataclasses.fields(PropertyError)) + "}")
+            errors_at.append(i)
         elif kind in (bool, int, str, tuple, type(None)):
-            others.append(i)
-            lines.append(key + "%s")
+            others_at.append(i)
         else:
-            lines = None
             break
-    if lines is not None:
-        lines.append("    limit_ratio: %r")
-    plan = ("\n".join(lines) if lines is not None else None, tuple(others), tuple(errors[::-1]))
-    if len(_QUALITY_PLANS) < 64:
-        _QUALITY_PLANS[kinds] = plan
-    return plan
+    else:
+        import operator
+
+        def key(name):
+            return formats.yaml_key(name).replace("%", "%%")
+
+        enames = [key(e.name) for e in dataclasses.fields(PropertyError)]
+        n_float = len(floats_at) + len(errors_at) * len(enames) + 1
+        slots = {i: [k] for k, i in enumerate(floats_at)}  # field → its texts (floats first, then nodes)
+        slots.update((i, list(range(len(floats_at) + k * len(enames), len(floats_at) + (k + 1) * len(enames))))
+                     for k, i in enumerate(errors_at))
+        slots.update((i, [n_float + k]) for k, i in enumerate(others_at))
+        lines, order = [], []
+        for i, f in enumerate(dataclasses.fields(FitQuality)):
+            value = "%s" if kinds[i] is not PropertyError else "{" + ", ".join(f"{e}: %s" for e in enames) + "}"
+            lines.append(f"    {key(f.name)}: {value}")
+            order += slots[i]
+        lines.append("    limit_ratio: %s")
+        order.append(n_float - 1)
+        plan = ("\n".join(lines), operator.itemgetter(*order), tuple(floats_at), tuple(errors_at), tuple(others_at))
+        if len(_QUALITY_PLANS) < 64:
+            _QUALITY_PLANS[kinds] = plan
+        return plan
+    return (None,)
 
 
 _QUALITY_PLANS: dict = {}
