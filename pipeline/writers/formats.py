@@ -475,11 +475,26 @@ def species_entry(name: str, composition: dict, charge: int, phase: str, molar_m
         reference_pressure: 100000.0
     """
     y = yaml_value
-    out = [f"- name: {y(name)}\n  composition: {y(composition)}\n  charge: {y(charge)}\n  phase: {y(phase)}\n"
-           f"  molar_mass: {y(molar_mass)}\n  tmid: {y(tmid)}\n  ranges:\n"]
-    out += [f"  - {{tmin: {y(r['tmin'])}, tmax: {y(r['tmax'])}, coefficients: {y(r['coefficients'])}}}\n"
-            for r in ranges]
-    out.append(f"  reference_state: {y(reference_state)}\n")
+    floats = [molar_mass, tmid]
+    for r in ranges:
+        floats += (r["tmin"], r["tmax"], *r["coefficients"])
+    floats += reference_state.values()
+    floats.append(pressure_pa)
+    if set(map(type, floats)) == _FLOAT:  # the usual entry: its floats converted together, one % format
+        key = (tuple(len(r["coefficients"]) for r in ranges), tuple(reference_state))
+        fmt = _ENTRY_FORMATS.get(key) or _entry_format(key)
+        texts = float_texts(floats)
+        head = fmt % (_yaml_string(name) if type(name) is str else y(name), _flow_cached(composition),
+                      y(charge), _yaml_string(phase) if type(phase) is str else y(phase), *texts[:-1])
+        tail = texts[-1]
+    else:
+        head = (f"- name: {y(name)}\n  composition: {y(composition)}\n  charge: {y(charge)}\n  phase: {y(phase)}\n"
+                f"  molar_mass: {y(molar_mass)}\n  tmid: {y(tmid)}\n  ranges:\n"
+                + "".join([f"  - {{tmin: {y(r['tmin'])}, tmax: {y(r['tmax'])}, coefficients: {y(r['coefficients'])}}}\n"
+                           for r in ranges])
+                + f"  reference_state: {y(reference_state)}\n")
+        tail = y(pressure_pa)
+    out = [head]
     if quality and type(quality) is not str:
         quality = yaml_block(quality, 4)
     out.append(f"  fit_quality:\n{quality}\n" if quality else "  fit_quality: {}\n")
@@ -488,8 +503,49 @@ def species_entry(name: str, composition: dict, charge: int, phase: str, molar_m
     out.append("  sources:\n")
     out += [f"  - {y(source)}\n" for source in sources]
     out.append(f"  provenance:\n    species_file: {y(species_file)}\n    sha256: {y(sha256)}\n"
-               f"    tool_version: {y(version)}\n    model: {y(model)}\n    reference_pressure: {y(pressure_pa)}\n")
+               f"    tool_version: {y(version)}\n    model: {_flow_cached(model)}\n    reference_pressure: {tail}\n")
     return "".join(out)
+
+
+_ENTRY_FORMATS: dict = {}
+
+
+def _entry_format(key: tuple) -> str:
+    """The ``%`` format of the head of an entry (name … reference_state) whose ranges have
+    ``key[0]`` coefficients and whose reference state has the keys ``key[1]``: four
+    nodes, then the floats' texts."""
+    lines = ["- name: %s", "  composition: %s", "  charge: %s", "  phase: %s", "  molar_mass: %s", "  tmid: %s",
+             "  ranges:"]
+    lines += ["  - {tmin: %s, tmax: %s, coefficients: [" + ", ".join(["%s"] * n) + "]}" for n in key[0]]
+    lines.append("  reference_state: {" + ", ".join(f"{yaml_key(k).replace('%', '%%')}: %s" for k in key[1]) + "}")
+    fmt = "\n".join(lines) + "\n"
+    if len(_ENTRY_FORMATS) < 256:
+        _ENTRY_FORMATS[key] = fmt
+    return fmt
+
+
+_FLOWS: dict = {}
+
+
+def _flow_cached(value) -> str:
+    """:func:`yaml_value` of ``value``, remembered for a small mapping of string keys and
+    scalar values (a formula, the model settings: the same for many species) by its
+    items and their types."""
+    if type(value) is dict:
+        kinds = tuple(map(type, value.values()))
+        if _SCALARS.issuperset(kinds) and _STR.issuperset(map(type, value)):
+            key = (tuple(value.items()), kinds)
+            text = _FLOWS.get(key)
+            if text is None:
+                if len(_FLOWS) > 4096:
+                    _FLOWS.clear()
+                text = _FLOWS[key] = yaml_value(value)
+            return text
+    return yaml_value(value)
+
+
+_SCALARS = frozenset((str, int, float, bool, type(None)))
+_STR = frozenset((str,))
 
 
 def report_row(name: str, formula: str, dhf298: float, s298: float, cp298: float, tmid: float, tmid_auto: bool,
