@@ -13,9 +13,12 @@ import numpy as np
 from scipy import constants as C
 
 from pipeline.elements import ELEMENT_H298_H0
-from pipeline.statmech import stacked_terms
+from pipeline.statmech import sorted_terms
 
 T_REF = 298.15  # [K]
+
+#: most species :func:`thermo_tables` computes in one set of (species × temperature) arrays
+BATCH = 64
 
 
 def temperature_grid(tmin: float = 200.0, tmax: float = 6000.0, step: float = 10.0) -> np.ndarray:
@@ -121,7 +124,7 @@ def thermo_tables(species_list, T=None, pressure: float = C.bar) -> list[ThermoT
     """:func:`thermo_table` of many species on one grid ``T`` [K], computed together.
 
     The partition-function sums run on (species × temperature) arrays
-    (:func:`pipeline.statmech.stacked_terms`); a species' table is the same,
+    (:func:`pipeline.statmech.sorted_terms`); a species' table is the same,
     bit for bit, alone or in any list.
 
     >>> import pipeline.species as sp
@@ -134,25 +137,35 @@ def thermo_tables(species_list, T=None, pressure: float = C.bar) -> list[ThermoT
     if T is None:
         T = temperature_grid()
     T = np.atleast_1d(np.asarray(T, dtype=float))
+    if len(species_list) > BATCH:  # in batches whose arrays stay in cache (rows are independent)
+        return [t for lo in range(0, len(species_list), BATCH)
+                for t in thermo_tables(species_list[lo : lo + BATCH], T, pressure)]
     if not species_list:
         return []
     Tx = np.append(T, T_REF)
-    terms = stacked_terms(species_list, Tx, pressure)
+    row, s_r, h_rt, cp_r = sorted_terms(species_list, Tx, pressure)
     R = C.R
-    h_h0 = R * Tx * terms.h_rt
+    h_h0 = R * Tx * h_rt
     h298_h0 = h_h0[:, -1:]
-    s = R * terms.s_r[:, :-1]
-    cp = R * terms.cp_r[:, :-1]
+    s = R * s_r[:, :-1]
+    cp = R * cp_r[:, :-1]
     dh = h_h0[:, :-1] - h298_h0
     g_fn = s - dh / T
-    s298 = (R * terms.s_r[:, -1]).tolist()
-    cp298 = (R * terms.cp_r[:, -1]).tolist()
+    s298 = (R * s_r[:, -1]).tolist()
+    cp298 = (R * cp_r[:, -1]).tolist()
+    h0 = h298_h0[:, 0].tolist()
+    dhf = [formation_at_298(sp, h0[r]) for sp, r in zip(species_list, row)]
+    dhf_rows = np.empty(len(row))
+    dhf_rows[row] = dhf
+    h = dhf_rows[:, None] + dh
+    new = object.__new__
     out = []
     for i, sp in enumerate(species_list):
-        h0 = float(h298_h0[i, 0])
-        dhf = formation_at_298(sp, h0)
-        out.append(ThermoTable(
-            name=sp.name, T=T, cp=cp[i], s=s[i], h_minus_h298=dh[i], g_fn=g_fn[i], h=dhf + dh[i],
-            dhf298=dhf, s298=s298[i], cp298=cp298[i], h298_minus_h0=h0, pressure=pressure,
-        ))
+        r = row[i]
+        t = new(ThermoTable)  # the dataclass's fields, set without its frozen __setattr__
+        t.__dict__.update(
+            name=sp.name, T=T, cp=cp[r], s=s[r], h_minus_h298=dh[r], g_fn=g_fn[r], h=h[r],
+            dhf298=dhf[i], s298=s298[r], cp298=cp298[r], h298_minus_h0=h0[r], pressure=pressure,
+        )
+        out.append(t)
     return out

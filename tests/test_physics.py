@@ -581,3 +581,58 @@ def test_diatomic_level_sum_has_every_bound_level(database, name, monkeypatch):
     wide = thermo_table(database[name], T)
     assert np.max(np.abs(wide.cp / base.cp - 1)) < 1e-9
     assert np.max(np.abs(wide.s - base.s)) < 1e-9
+
+
+def test_harmonic_groups_sum_each_group_on_its_own(monkeypatch):
+    """The batched harmonic sums equal, bit for bit, each group's modes added one after the
+    other (x = θ/T, e = eˣ − 1, S/R = x/e + x − ln e, (H−H0)/RT = x/e, Cv/R = (x/e)²(1 + e),
+    the expressions of pipeline.statmech.vibration.harmonic), in any group order and block size.
+    The θ values are random (a load, not data)."""
+    import pipeline.statmech.vibration as vib
+
+    rng = np.random.default_rng(7)
+    sizes = [3, 1, 7, 3, 9, 1, 3, 6, 7, 3]
+    thetas = rng.uniform(30.0, 6000.0, sum(sizes))
+    starts = np.cumsum([0] + sizes[:-1])
+    T = np.array([200.0, 298.15, 450.0, 1000.0, 2500.0, 6000.0, 5.0])  # 5 K: x past the 700 cap
+
+    def alone(th):
+        x = np.minimum(th[:, None] / T, 700.0)
+        e = np.expm1(x)
+        h = x / e
+        rows = (h + (x - np.log(e)), h, h * h * (1.0 + e))
+        out = [r[0].copy() for r in rows]
+        for k in range(1, th.size):
+            out = [o + r[k] for o, r in zip(out, rows)]
+        return out
+
+    want = [alone(thetas[a:a + n]) for a, n in zip(starts, sizes)]
+    for chunk in (vib.CHUNK, 1):  # one block for all groups of a size, or one group a block
+        monkeypatch.setattr(vib, "CHUNK", chunk)
+        got = vib.harmonic_groups(thetas, starts, T)
+        for g, w in enumerate(want):
+            for a, b in zip(got, w):
+                assert np.array_equal(a[g], b), g
+    # the groups in another order: the same rows
+    perm = [4, 0, 9, 2, 7, 1, 3, 8, 5, 6]
+    th2 = np.concatenate([thetas[starts[g]:starts[g] + sizes[g]] for g in perm])
+    got = vib.harmonic_groups(th2, np.cumsum([0] + [sizes[g] for g in perm[:-1]]), T)
+    for r, g in enumerate(perm):
+        for a, b in zip(got, want[g]):
+            assert np.array_equal(a[r], b), g
+
+
+def test_linear_rotors_rows_equal_single_molecules():
+    """Linear rotors computed together (level sums grouped by level count, the Mulholland
+    expansion on one array) give each molecule the bits it gets alone; θ_r values span
+    the exact-sum and expansion regions of the grid (a load, not data)."""
+    from pipeline.statmech.rotation import linear_rotor, linear_rotors
+
+    T = np.append(np.arange(200.0, 6001.0, 50.0), 298.15)
+    thetas = [0.2, 1.3, 2.1, 2.1, 3.0, 15.0, 87.6, 0.6, 1.9]
+    sigma = [1, 2, 1, 2, 1, 1, 2, 2, 1]
+    together = linear_rotors(thetas, sigma, T)
+    for i, (th, sg) in enumerate(zip(thetas, sigma)):
+        alone = linear_rotor(th, sg, T)
+        for a, b in zip((together.s_r, together.h_rt, together.cp_r), (alone.s_r, alone.h_rt, alone.cp_r)):
+            assert np.array_equal(a[i], b), th

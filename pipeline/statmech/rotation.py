@@ -19,14 +19,17 @@ from pipeline.statmech.terms import Terms, level_sum
 EXACT_BELOW = 200.0
 
 
-def linear_levels(theta_r, T_max: float, depth: float = 60.0):
-    """Rigid-rotor levels J(J+1) θ_r with degeneracies 2J+1 up to e^{−depth} at T_max.
+def linear_levels(theta_r, T_max: float, depth: float = 60.0, count_only: bool = False):
+    """Rigid-rotor levels J(J+1) θ_r with degeneracies 2J+1 up to e^{−depth} at T_max
+    (``count_only``: just their number).
 
     >>> th, g = linear_levels(10.0, 10.0, depth=6.0)
     >>> g.tolist()
     [1.0, 3.0, 5.0]
     """
     jmax = int(math.ceil(0.5 * (-1 + math.sqrt(1 + 4 * depth * T_max / theta_r)))) + 1
+    if count_only:
+        return jmax
     J = np.arange(jmax, dtype=float)
     return J * (J + 1) * theta_r, 2 * J + 1
 
@@ -71,19 +74,75 @@ def linear_rotor(theta_r: float, symmetry: int, T) -> Terms:
     Reference: H. P. Mulholland, Proc. Cambridge Phil. Soc. 24, 280 (1928);
     McQuarrie, *Statistical Mechanics* (1976), eq. 6-38.
     """
+    t = linear_rotors([theta_r], [symmetry], T)
+    return Terms(t.s_r[0], t.h_rt[0], t.cp_r[0])
+
+
+def linear_rotors(theta_r, symmetry, T) -> Terms:
+    """:func:`linear_rotor` of several molecules on one grid: Terms of (L, m) arrays.
+
+    The Mulholland expansion is evaluated for all molecules and temperatures
+    at once; the temperatures below ``EXACT_BELOW`` θ_r take the level sum,
+    molecule by molecule.  Each value is the one :func:`linear_rotor` gives.
+
+    Parameters
+    ----------
+    theta_r : array (L,)
+        Rotational temperatures θ_r [K].
+    symmetry : array (L,)
+        Rotational symmetry numbers σ [-].
+    T : array (m,)
+        Temperatures [K].
+
+    >>> t = linear_rotors([2.78, 2.78], [1, 2], [298.15])
+    >>> round(float(t.s_r[0, 0] - t.s_r[1, 0]), 6)   # ln 2
+    0.693147
+    """
     T = np.atleast_1d(np.asarray(T, dtype=float))
-    out_s = np.empty_like(T)
-    out_h = np.empty_like(T)
-    out_c = np.empty_like(T)
-    exact = T < EXACT_BELOW * theta_r
+    theta_r = np.asarray(theta_r, dtype=float)
+    exact = T < EXACT_BELOW * theta_r[:, None]
+    # y = θ/T: the expansion is kept only where y ≤ 1/200; elsewhere it may overflow unseen
+    with np.errstate(all="ignore"):
+        out = _mulholland(theta_r[:, None], T)
+    out_s, out_h, out_c = out.s_r, out.h_rt, out.cp_r
     if exact.any():
-        th, g = linear_levels(theta_r, float(T[exact].max()))
-        t = level_sum(th, g, T[exact])
-        out_s[exact], out_h[exact], out_c[exact] = t.s_r, t.h_rt, t.cp_r
-    if (~exact).any():
-        t = _mulholland(theta_r, T[~exact])
-        out_s[~exact], out_h[~exact], out_c[~exact] = t.s_r, t.h_rt, t.cp_r
-    return Terms(out_s - math.log(symmetry), out_h, out_c)
+        for i, t, rows, cols in _exact_sums(theta_r, exact, T):
+            out_s[i[rows], cols], out_h[i[rows], cols], out_c[i[rows], cols] = t.s_r, t.h_rt, t.cp_r
+    log_sigma = np.array([math.log(s) for s in symmetry])
+    return Terms(out_s - log_sigma[:, None], out_h, out_c)
+
+
+def _exact_sums(theta_r, exact, T):
+    """The level sums of :func:`linear_rotors` at its ``exact`` (L, m) temperatures.
+
+    Yields ``(molecules, terms, rows, cols)``: for the molecules (indices) that
+    share a number of levels (:func:`linear_levels` up to their highest exact
+    temperature), the sums of :func:`pipeline.statmech.terms.level_sum` at
+    temperature ``T[cols]`` of molecule ``molecules[rows]``, all computed at
+    once — a sum over one row of levels, the same as the molecule's own call.
+    """
+    hot = np.flatnonzero(exact.any(axis=1))
+    t_max = np.where(exact[hot], T, -np.inf).max(axis=1).tolist()
+    sizes: dict[int, list[int]] = {}
+    for i, tm in zip(hot.tolist(), t_max):
+        sizes.setdefault(linear_levels(float(theta_r[i]), tm, count_only=True), []).append(i)
+    for n, members in sizes.items():
+        i = np.array(members)
+        J = np.arange(n, dtype=float)
+        levels = (J * (J + 1))[None, :] * theta_r[i][:, None]
+        levels = levels - levels.min(axis=1, keepdims=True)
+        rows, cols = np.nonzero(exact[i])
+        yield i, _row_level_sums(levels[rows], 2 * J + 1, T[cols]), rows, cols
+
+
+def _row_level_sums(theta, g, T) -> Terms:
+    """:func:`pipeline.statmech.terms.level_sum` with levels ``theta[r]`` (from 0) at ``T[r]``, row by row."""
+    x = theta / T[:, None]
+    w = g[None, :] * np.exp(-x)
+    q = w.sum(axis=1)
+    m1 = (w * x).sum(axis=1) / q
+    m2 = (w * x * x).sum(axis=1) / q
+    return Terms(np.log(q) + m1, m1, np.maximum(m2 - m1 * m1, 0.0))
 
 
 def nonlinear_rotor(thetas, symmetry: int, T, optical_isomers: int = 1) -> Terms:

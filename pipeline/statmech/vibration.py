@@ -46,7 +46,12 @@ def harmonic_groups(theta_v, starts, T):
     ``theta_v`` (M,) [K] holds the groups one after the other, group g starting
     at ``starts[g]`` (increasing; every group non-empty).  Returns S/R,
     (H−H0)/RT, Cv/R as (G, m) arrays.  Each group is summed mode by mode in
-    its own order, so a group's sums do not depend on the other groups.
+    its own order (((θ₀ + θ₁) + θ₂) + …, at every temperature), so a group's
+    sums depend neither on the other groups nor on the rest of the grid.
+
+    Groups of the same size are evaluated together, a block of them at a
+    time: mode k of each group of the block is row k of a (modes, groups,
+    temperatures) array, and the sums run over its first axis.
 
     >>> s, h, cv = harmonic_groups([1000.0, 1000.0, 2000.0], [0, 2], [1000.0])
     >>> round(float(cv[0, 0]), 6), round(float(cv[1, 0]), 6)   # 2·e/(e−1)², 4e²/(e²−1)²
@@ -55,25 +60,48 @@ def harmonic_groups(theta_v, starts, T):
     T = np.atleast_1d(np.asarray(T, dtype=float))
     theta_v = np.asarray(theta_v, dtype=float)
     starts = np.asarray(starts, dtype=np.intp)
-    ends = np.r_[starts[1:], theta_v.size]
-    out = tuple(np.empty((starts.size, T.size)) for _ in range(3))
-    g0 = 0
-    while g0 < starts.size:  # runs of groups of about CHUNK values, so the work stays in cache
-        g1 = int(np.searchsorted(starts, starts[g0] + max(1, CHUNK // T.size), side="left"))
-        g1 = max(g1, g0 + 1)
-        lo = starts[g0]
-        # (modes, temperatures); x capped at 700 where eˣ would overflow (terms below e^-690 ≈ 1e-300)
-        x = np.minimum(theta_v[lo : ends[g1 - 1], None] / T[None, :], 700.0)
-        # with e = eˣ − 1 (accurate for small x): (H−H0)/RT = x/e, Cv/R = (x/e)² (1 + e),
-        # S/R = x/e + x − ln e
-        e = np.expm1(x)
-        h = x / e
-        cv = h * h * (1.0 + e)
-        s = h + (x - np.log(e))
-        for g in range(g0, g1):
-            for o, a in zip(out, (s, h, cv)):
-                o[g] = a[starts[g] - lo : ends[g] - lo].sum(axis=0)
-        g0 = g1
+    G, m = starts.size, T.size
+    if m == 1:  # (modes, 1, 1) would be summed pairwise, not mode by mode: use two equal columns
+        return tuple(a[:, :1].copy() for a in harmonic_groups(theta_v, starts, np.r_[T, T]))
+    out = tuple(np.empty((G, m)) for _ in range(3))
+    if not G:
+        return out
+    size = np.diff(np.r_[starts, theta_v.size])
+    order = np.argsort(size, kind="stable")
+    # x capped at 700 where eˣ would overflow (terms below e^-690 ≈ 1e-300); the cap only
+    # matters when some θ/T reaches it (division rounds monotonically, so max θ / min T bounds all)
+    cap = not (T.min() > 0.0 and theta_v.max() / T.min() < 700.0)
+    room = max(CHUNK, int(size.max()) * m)  # values per block, so the work stays in cache
+    x_, e_, h_, w_ = (np.empty(room) for _ in range(4))
+    sizes = size[order].tolist()
+    edges = [0] + [i for i in range(1, G) if sizes[i] != sizes[i - 1]] + [G]
+    for c0, c1 in zip(edges[:-1], edges[1:]):  # the groups of one size, in their own order
+        n = sizes[c0]
+        per = max(1, room // (n * m))
+        for b0 in range(c0, c1, per):
+            g = order[b0 : min(c1, b0 + per)]
+            shape = (n, g.size, m)
+            x, e, h, w = (a[: n * g.size * m].reshape(shape) for a in (x_, e_, h_, w_))
+            np.divide(theta_v[starts[g][None, :] + np.arange(n)[:, None]][:, :, None], T, out=x)
+            if cap:
+                np.minimum(x, 700.0, out=x)
+            # with e = eˣ − 1 (accurate for small x): (H−H0)/RT = x/e, Cv/R = (x/e)² (1 + e),
+            # S/R = x/e + x − ln e
+            np.expm1(x, out=e)
+            np.divide(x, e, out=h)
+            np.log(e, out=w)
+            np.subtract(x, w, out=x)
+            np.add(h, x, out=x)  # S/R
+            np.multiply(h, h, out=w)
+            np.add(e, 1.0, out=e)
+            np.multiply(w, e, out=w)  # Cv/R
+            lo, hi = int(g[0]), int(g[-1]) + 1  # g increases (a stable sort)
+            rows = slice(lo, hi) if hi - lo == g.size else g
+            for o, a in zip(out, (x, h, w)):
+                if isinstance(rows, slice):
+                    np.add.reduce(a, axis=0, out=o[rows])
+                else:
+                    o[rows] = np.add.reduce(a, axis=0)
     return out
 
 
