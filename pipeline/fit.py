@@ -167,14 +167,34 @@ class FitQuality:
         return self.cp_r.max_rel / ref if ref > 0 else (1.0 if self.cp_r.max_rel == 0 else math.inf)
 
     def as_dict(self) -> dict:
-        """Plain floats, strings, bools and lists (for YAML/JSON writers)."""
-        d = {f.name: getattr(self, f.name) for f in dataclasses.fields(self)}  # not asdict: no deep copies
-        for key, value in d.items():
-            if isinstance(value, PropertyError):
-                d[key] = {f.name: getattr(value, f.name) for f in dataclasses.fields(value)}
-        d["warnings"] = list(self.warnings)
+        """Plain floats, strings, bools and lists (for YAML/JSON writers), in field order
+        and then ``limit_ratio``."""
+        d = {}
+        for name, value in zip(_field_names(FitQuality), _field_getter(FitQuality)(self)):  # not asdict
+            kind = type(value)
+            if kind is PropertyError:
+                value = {k: (v if type(v) is float else _plain(v))
+                         for k, v in zip(_field_names(PropertyError), _field_getter(PropertyError)(value))}
+            elif kind not in _PLAIN and value is not None:
+                value = _plain(value)
+            d[name] = value
+        d["warnings"] = [w if type(w) is str else _plain(w) for w in self.warnings]
         d["limit_ratio"] = float(self.limit_ratio)
-        return _plain(d)
+        return d
+
+
+@functools.lru_cache(maxsize=None)
+def _field_names(cls) -> tuple:
+    """The field names of dataclass ``cls``, in order."""
+    return tuple(f.name for f in dataclasses.fields(cls))
+
+
+@functools.lru_cache(maxsize=None)
+def _field_getter(cls):
+    """A getter of the field values of dataclass ``cls`` as a tuple, in order."""
+    import operator
+
+    return operator.attrgetter(*_field_names(cls))
 
 
 def _plain(v):
@@ -446,6 +466,8 @@ def _tiled(a, b, out=None):
     return out
 
 
+#: the reductions of ndarray.sum / ndarray.max, without their Python wrappers
+_add, _max = np.add.reduce, np.maximum.reduce
 #: rows of the transposed products in :class:`_Pass`: the 15 entries Σ a c cᵀ (and one zero
 #: column), then Σ a d c; for the normal matrix, its low block and the high-range parts
 _GG = 16
@@ -514,16 +536,16 @@ class _Pass:
         A[:5, :5] = XT[_SYM_FLAT, :R].reshape(5, 5, R)
         FH = self.FH
         np.multiply(XT[_FM_ROWS, R:].reshape(6, 1, 5, R), MqT[None], out=self.T1)
-        np.sum(self.T1, axis=2, out=FH)
+        _add(self.T1, axis=2, out=FH)
         A[:5, 5:] = FH[:5]
         A[5:p, :5] = FH[:5].transpose(1, 0, 2)
         np.multiply(MqT[:, :, None], FH[None, :5], out=self.T2)
-        np.sum(self.T2, axis=1, out=A[5:p, 5:])
+        _add(self.T2, axis=1, out=A[5:p, 5:])
         A[p, :5] = XT[_GG : _GG + 5, :R]
         A[p, 5:] = FH[5]
         # the ridge of _lawson's iteration, at round-off level
         trace = self.trace
-        np.sum(self.diag, axis=0, out=trace)
+        _add(self.diag, axis=0, out=trace)
         trace *= 1e-15
         trace += 1e-300
         self.diag += trace
@@ -547,7 +569,7 @@ class _Pass:
         AB = self.AB
         np.copyto(AB[:R], theta[:5].T)
         np.multiply(theta[5:, None, :], MqT, out=self.TB)
-        np.sum(self.TB, axis=0, out=self.BT)
+        _add(self.TB, axis=0, out=self.BT)
         np.copyto(AB[R:], self.BT.T)
         np.matmul(self.AB3, CT, out=self.buf3)
         return buf, AB
@@ -658,11 +680,11 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None, owner=None, incumbent=No
             ar, wa = high, low  # work space from here on
             np.multiply(dres, inv, out=ar)
             np.abs(ar, out=ar)  # |r_i|, the relative error
-            err = ar.max(axis=1)
+            err = _max(ar, axis=1)
             np.multiply(w, ar, out=wa)
-            den = wa.sum(axis=1)
+            den = _add(wa, axis=1)
             np.multiply(wa, ar, out=w)  # w is not needed any more: work space
-            bound = w.sum(axis=1) / np.where(den > 0, den, 1.0)
+            bound = _add(w, axis=1) / np.where(den > 0, den, 1.0)
             it += 1
             it_lo += 1
             it_hi += 1
@@ -672,7 +694,7 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None, owner=None, incumbent=No
             np.maximum(bnd, bound, out=bnd)
             np.sqrt(ar, out=ar)
             np.multiply(wa, ar, out=w)  # w ← w |r|^1.5 / Σ w |r|^1.5
-            w /= np.maximum(w.sum(axis=1, keepdims=True), 1e-300)
+            w /= np.maximum(_add(w, axis=1, keepdims=True), 1e-300)
             if it_hi < 2:  # the bound is trusted from the second iteration on
                 if it_hi < max_iter:
                     continue
@@ -689,7 +711,7 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None, owner=None, incumbent=No
                 if it_hi >= max_iter:
                     finished |= it >= max_iter
                 finished &= alive
-            rf = np.flatnonzero(finished)
+            rf = finished.nonzero()[0]
             if not rf.size:
                 continue
             rr = row[rf]
@@ -702,7 +724,7 @@ def _lawson(basis, y, tmid, sd, tol, max_iter, v0=None, owner=None, incumbent=No
             if owner is not None:
                 np.minimum.at(known, owner[rr], best[rf])
             alive &= ~finished
-            live = np.flatnonzero(alive)
+            live = alive.nonzero()[0]
             if not live.size:
                 return None
             st = dict(zip(STATE, (row, alive, ys, inv, inv2, mask, MqT, w, dres, theta, best, best_ab, bnd, it)))
@@ -984,6 +1006,9 @@ def fit_tables(tables, options) -> list[Nasa7Fit]:
         known = grids.get((id(t.T), tlow, thigh))
         if known is None or known[0] is not t.T:
             keep = _grid(t, tlow, thigh)
+            where = keep.nonzero()[0]
+            if where.size and where[-1] - where[0] + 1 == where.size:  # one run of points: a slice
+                keep = slice(int(where[0]), int(where[-1]) + 1)
             known = grids[(id(t.T), tlow, thigh)] = (t.T, keep, np.asarray(t.T, dtype=float)[keep].tobytes())
         keeps.append(known[1])
         groups.setdefault((known[2], tlow, thigh, bool(o["second_derivative"])), []).append(i)
@@ -1361,13 +1386,21 @@ def _classical_grid(tlow: float, thigh: float) -> np.ndarray:
     return T
 
 
+@functools.lru_cache(maxsize=1)
+def _no_overrides():
+    from pipeline.species import FitOptions
+
+    return FitOptions()
+
+
 def fit_options(species, settings) -> dict:
     """fit_table keyword arguments for one species under build ``settings``.
 
     Applies the species file's ``fit:`` overrides (Settings.for_species) and
     adds formula, charge and the classical Cp ceiling.
     """
-    s = settings.for_species(species)
+    # Settings.for_species applies the species' fit: block; without one it would only copy
+    s = settings if species.fit == _no_overrides() else settings.for_species(species)
     return dict(tlow=float(s.tmin), tmid=s.tmid if s.tmid == "auto" else float(s.tmid),
                 thigh=float(s.tmax), cp_warning=float(s.cp_warning), formula=species.formula,
                 charge=species.charge, cp_r_ceiling=classical_cp_r(species, s.tmin, s.tmax))
