@@ -549,7 +549,11 @@ def _checked(ck: _Checker, doc: Any, data: bytes) -> tuple[Species, list[Diagnos
         raise InputError(
             [Diagnostic(file, "", f"top level is a {type(doc).__name__}, expected a mapping of species keys")]
         )
-    species = _build(ck, doc, _sha256(data))
+    digest = _sha256(data)
+    species = _plain(doc, file, digest)
+    if species is not None:
+        return species, []
+    species = _build(ck, doc, digest)
     if ck.failed or species is None:
         raise InputError(ck.diagnostics)
     return species, [d for d in ck.diagnostics if d.severity == "warning"]
@@ -708,6 +712,262 @@ def _build(ck: _Checker, doc: dict, digest: str) -> Species | None:
         path=ck.file,
         sha256=digest,
     )
+
+
+# --------------------------------------------------------------------------
+# The common case: a plain, valid file
+# --------------------------------------------------------------------------
+#
+# Most files use only the basic blocks and are valid.  _plain reads such a file
+# in one pass and builds the Species that _build builds (the same expressions,
+# so the same bits); at the first value that is not plainly valid, or any block
+# it does not read itself, it returns None and _build reads the file again,
+# reporting every error and warning in its own words.  tests/test_species.py
+# checks the two agree.
+
+
+class _NotPlain(Exception):
+    """The document needs the full checks of :func:`_build`."""
+
+
+_ROTOR_KEYS = frozenset({"constants", "moments", "unit"})  # no geometry, no uncertainty
+_VIBRATION_KEYS = frozenset({"frequencies", "unit", "scale"})
+_ELECTRONIC_UNITS = ("cm-1", "K", "eV")
+_ENTHALPY_UNITS = ("kJ/mol", "kcal/mol", "J/mol")
+_MODES = {"linear": 5, "nonlinear": 6}
+_LATER = ("diatomic", "torsions", "fit", "reference")  # blocks only _build reads
+
+
+def _plain_numbers(value) -> list[float]:
+    """A non-empty list of finite int/float values as floats."""
+    if type(value) is not list or not value:
+        raise _NotPlain
+    for v in value:
+        if type(v) is not float and type(v) is not int:
+            raise _NotPlain
+    out = [float(v) for v in value]
+    if not math.isfinite(sum(out)):  # inf or nan among them (or a sum past 1e308: also left to _build)
+        raise _NotPlain
+    return out
+
+
+def _plain_number(value) -> float:
+    if type(value) is not float and type(value) is not int:
+        raise _NotPlain
+    x = float(value)
+    if not math.isfinite(x):
+        raise _NotPlain
+    return x
+
+
+def _plain_count(value) -> int:
+    """An int ≥ 1 (what _Checker.integer(minimum=1) accepts as it is)."""
+    if type(value) is not int or value < 1:
+        raise _NotPlain
+    return value
+
+
+def _plain_unit(m: dict, options, default: str) -> str:
+    unit = m.get("unit")
+    if unit is None:
+        return default
+    if type(unit) is not str or unit not in options:
+        raise _NotPlain
+    return unit
+
+
+def _plain(doc: dict, file: str, digest: str) -> Species | None:
+    """The Species of a plain, valid document, or None (then :func:`_build` decides)."""
+    try:
+        return _plain_species(doc, file, digest)
+    except _NotPlain:
+        return None
+    except Exception:  # anything unexpected: _build's own checks say what is wrong
+        return None
+
+
+def _plain_species(doc: dict, file: str, digest: str) -> Species:
+    for key in doc:
+        if key not in _TOP_KEYS:
+            raise _NotPlain
+    for key in _REQUIRED:
+        if key not in doc:
+            raise _NotPlain
+    get = doc.get
+    for key in _LATER:
+        if get(key) is not None:
+            raise _NotPlain
+    notes = get("notes")
+    if notes is not None and type(notes) is not str:
+        raise _NotPlain
+
+    name = doc["name"]
+    if type(name) is not str or not NAME_PATTERN.match(name):
+        raise _NotPlain
+    raw = doc["formula"]
+    if type(raw) is not dict or not raw:
+        raise _NotPlain
+    formula = []
+    for el, n in raw.items():
+        if type(el) is not str or el not in ATOMIC_WEIGHT:
+            raise _NotPlain
+        formula.append((el, _plain_count(n)))
+    formula = tuple(formula)
+    charge = get("charge", 0)
+    if type(charge) is not int:
+        raise _NotPlain
+    shape = doc["shape"]
+    if type(shape) is not str or shape not in SHAPES:
+        raise _NotPlain
+    natoms = sum(n for _, n in formula)
+    if (shape == "atom") != (natoms == 1) or (shape == "nonlinear" and natoms == 2):
+        raise _NotPlain
+    symmetry = _plain_count(doc["symmetry"])
+    optical = _plain_count(get("optical_isomers", 1))
+
+    expect = formula_mass(dict(formula), charge)
+    if get("mass") is not None:
+        mass = _plain_number(doc["mass"])
+        if not mass > 0 or abs(mass - expect) > 0.01 * expect:  # an error, or _build's warning
+            raise _NotPlain
+    else:
+        mass = expect
+    if not mass:  # _build's final check
+        raise _NotPlain
+
+    rotor: tuple[float, ...] = ()
+    freqs: tuple[float, ...] = ()
+    scale = 1.0
+    if shape == "atom":
+        if get("rotor") is not None or get("vibrations") is not None:
+            raise _NotPlain
+    else:
+        m = doc.get("rotor")
+        if type(m) is not dict:
+            raise _NotPlain
+        for key in m:
+            if key not in _ROTOR_KEYS:
+                raise _NotPlain
+        if ("constants" in m) == ("moments" in m):
+            raise _NotPlain
+        if "constants" in m:
+            values = _plain_numbers(m["constants"])
+            unit = _plain_unit(m, units.ROTATIONAL, "cm-1")
+            if min(values) <= 0:
+                raise _NotPlain
+            consts = [v * units.WAVENUMBER[unit] for v in values]
+        else:
+            values = _plain_numbers(m["moments"])
+            unit = _plain_unit(m, units.MOMENT, "amu*angstrom^2")
+            if min(values) <= 0:
+                raise _NotPlain
+            # B̃ = h / (8 π² c I)  [m^-1]  (as _read_rotor)
+            consts = [C.h / (8 * math.pi**2 * C.c * v * units.MOMENT[unit]) for v in values]
+        if len(consts) != (1 if shape == "linear" else 3):
+            raise _NotPlain
+        rotor = tuple(sorted(consts, reverse=True))
+
+        m = doc.get("vibrations")
+        if type(m) is not dict:
+            raise _NotPlain
+        for key in m:
+            if key not in _VIBRATION_KEYS:
+                raise _NotPlain
+        values = _plain_numbers(m.get("frequencies"))
+        unit = _plain_unit(m, ("cm-1",), "cm-1")
+        if "scale" in m:
+            scale = _plain_number(m["scale"])
+            if not scale > 0:
+                raise _NotPlain
+        if min(values) <= 0 or len(values) != 3 * natoms - _MODES[shape]:
+            raise _NotPlain
+        factor = scale * units.WAVENUMBER[unit]
+        freqs = tuple(f * factor for f in values)
+
+    electronic = ((1, 0.0),)
+    m = get("electronic")
+    if m is not None:
+        if type(m) is not dict or "levels" not in m:
+            raise _NotPlain
+        for key in m:
+            if key != "levels" and key != "unit":
+                raise _NotPlain
+        unit = _plain_unit(m, _ELECTRONIC_UNITS, "cm-1")
+        levels = m["levels"]
+        if type(levels) is not list or not levels:
+            raise _NotPlain
+        out = []
+        for lv in levels:
+            if type(lv) is not list or len(lv) != 2:
+                raise _NotPlain
+            e = _plain_number(lv[1])
+            if e < 0:
+                raise _NotPlain
+            out.append((_plain_count(lv[0]), e * units.WAVENUMBER[unit]))
+        out.sort(key=lambda p: p[1])
+        if out[0][1] != 0.0:
+            raise _NotPlain
+        electronic = tuple(out)
+
+    m = doc["formation"]
+    if type(m) is not dict or "enthalpy" not in m:
+        raise _NotPlain
+    for key in m:
+        if key not in ("enthalpy", "unit", "temperature", "uncertainty"):
+            raise _NotPlain
+    h = _plain_number(m["enthalpy"])
+    factor = units.MOLAR_ENERGY[_plain_unit(m, _ENTHALPY_UNITS, "kJ/mol")]
+    t = 298.15 if "temperature" not in m else _plain_number(m["temperature"])
+    if t != 298.15 and t != 0.0:
+        raise _NotPlain
+    unc = None
+    if m.get("uncertainty") is not None:
+        unc = _plain_number(m["uncertainty"])
+        if unc < 0:
+            raise _NotPlain
+        unc = unc * factor
+
+    sources = doc["sources"]
+    if type(sources) is not list or not sources:
+        raise _NotPlain
+    for s in sources:
+        if type(s) is not str or not s.strip():
+            raise _NotPlain
+
+    # Species(...) with these fields (in their order) and the defaults for the rest, set
+    # without the frozen dataclass's per-field object.__setattr__ (a third of the time here)
+    sp = object.__new__(Species)
+    sp.__dict__.update(
+        name=name,
+        formula=formula,
+        shape=shape,
+        symmetry=symmetry,
+        mass=mass * C.atomic_mass,
+        sources=tuple(sources),
+        formation_enthalpy=h * factor,
+        formation_temperature=t,
+        formation_uncertainty=unc,
+        charge=charge,
+        optical_isomers=optical,
+        rotational_constants=rotor,
+        frequencies=freqs,
+        frequency_scale=scale,
+        electronic=electronic,
+        diatomic=None,
+        torsions=(),
+        fit=_NO_FIT,
+        frequency_scale_uncertainty=None,
+        frequency_uncertainties=None,
+        rotor_uncertainty=None,
+        reference=None,
+        path=file,
+        sha256=digest,
+    )
+    return sp
+
+
+#: the fit overrides of a file without a ``fit:`` block (frozen, so one instance serves all)
+_NO_FIT = FitOptions()
 
 
 def _check_modes(ck, freqs, scale, torsions, shape, natoms) -> tuple[float, ...]:

@@ -215,3 +215,121 @@ def test_database_reports_every_bad_file(tmp_path):
         load_database(tmp_path)
     files = {d.file.rsplit("/", 1)[-1] for d in exc.value.diagnostics}
     assert {"bad1.yaml", "bad2.yaml"} <= files
+
+
+# --------------------------------------------------------------------------
+# The plain-file reader (species._plain) against the full checks (species._build)
+# --------------------------------------------------------------------------
+
+
+def _full(d, file="X.yaml", digest="0" * 64):
+    """What _build makes of a document: (species or None, its diagnostics)."""
+    from pipeline.species import _build, _Checker
+
+    ck = _Checker(file)
+    sp = _build(ck, d, digest)
+    return (None if ck.failed else sp), ck.diagnostics
+
+
+def _same_as_full(d) -> bool:
+    """If _plain accepts ``d``, _build accepts it too, silently, with the same fields and bits.
+
+    Returns whether _plain accepted it."""
+    import pickle
+
+    from pipeline.species import _plain
+
+    fast = _plain(copy.deepcopy(d), "X.yaml", "0" * 64)
+    if fast is None:
+        return False
+    slow, diags = _full(copy.deepcopy(d))
+    assert slow is not None and not diags, diags
+    assert fast == slow
+    assert [(k, repr(v)) for k, v in vars(fast).items()] == [(k, repr(v)) for k, v in vars(slow).items()]
+    assert pickle.dumps(fast) == pickle.dumps(slow)
+    return True
+
+
+def _plain_documents():
+    """The bundled species and 120 benchmark species (pipeline.bench.synthesise: a load, not data)."""
+    import tempfile
+    from pathlib import Path
+
+    from buildkit import SPECIES_DIR
+    from pipeline.bench import synthesise
+
+    docs = [load_yaml(p.read_text(encoding="utf-8")) for p in sorted(SPECIES_DIR.glob("*.yaml"))
+            if p.name != "statherm.yaml"]
+    with tempfile.TemporaryDirectory() as tmp:
+        docs += [load_yaml(p.read_text(encoding="utf-8")) for p in synthesise(120, Path(tmp), seed=3)]
+    return docs
+
+
+PLAIN_DOCS = _plain_documents()
+
+
+def test_plain_reader_builds_what_the_full_checks_build():
+    """Every bundled and benchmark file the plain reader takes gives the Species of _build;
+    the benchmark files (basic blocks only) all take the plain path."""
+    taken = [_same_as_full(d) for d in PLAIN_DOCS]
+    assert all(taken[-120:])
+    assert _same_as_full(doc(mass=18.0, charge=0, optical_isomers=1, notes="n",
+                             electronic={"unit": "K", "levels": [[3, 100.0], [1, 0]]},
+                             formation={"enthalpy": -57.8, "unit": "kcal/mol", "temperature": 0,
+                                        "uncertainty": 0.1},
+                             vibrations={"frequencies": [3657, 1594.75, 3755.93], "scale": 0.97}))
+    assert _same_as_full(doc(rotor={"moments": [0.6, 1.2, 1.8]}))
+
+
+@pytest.mark.parametrize("changes", [
+    {"mass": 19.5},                                    # the 1 % mass warning
+    {"mass": 18.015, "charge": 1.0},                   # an integer written as a float
+    {"symmetry": 2.0},
+    {"formula": {"H": 2.0, "O": 1}},
+    {"rotor": {"constants": [27.88, 14.52, 9.28], "uncertainty": 0.01}},
+    {"vibrations": {"frequencies": [3657.05, 1594.75, 3755.93], "uncertainties": [1, 1, 1]}},
+    {"fit": {"tmid": 1200}},
+])
+def test_plain_reader_leaves_other_files_to_the_full_checks(changes):
+    """Files with a warning, or values and blocks the plain reader does not read itself,
+    go through _build (and keep its messages)."""
+    from pipeline.species import _plain
+
+    assert _plain(doc(**changes), "X.yaml", "0" * 64) is None
+
+
+def test_plain_reader_never_accepts_what_the_full_checks_refuse():
+    """Each value of plain documents replaced by other values, or its key removed: whenever the
+    plain reader accepts the result, _build accepts it silently, with the same Species.  The
+    replacement values are edge cases chosen to probe the checks (a load, not data)."""
+    others = [None, True, False, 0, -1, 1, 2, 3, 1.5, 0.0, -0.0, -2.5, 1e308, float("inf"), float("nan"),
+              "", " ", "x", "cm-1", "GHz", "K", "eV", "kcal/mol", "J/mol", "amu*angstrom^2", "g*cm^2", "linear",
+              "atom", "nonlinear", 10**400, [], [0.0], [1.0], [1, 2], [1.0, 2.0, 3.0], [[1, 0.0]], [[2, 0.0], [1, 5.0]],
+              {}, {"C": 1}, {"H": 1}, {"O": 2}]
+
+    def paths(node, prefix=()):
+        if prefix:
+            yield prefix
+        if isinstance(node, dict):
+            for k, v in node.items():
+                yield from paths(v, prefix + (k,))
+        elif isinstance(node, list):
+            for i, v in enumerate(node):
+                yield from paths(v, prefix + (i,))
+
+    accepted = 0
+    for base in PLAIN_DOCS[:33:4] + PLAIN_DOCS[-120::15]:
+        for path in paths(base):
+            for value in others + [...]:
+                d = copy.deepcopy(base)
+                parent = d
+                for step in path[:-1]:
+                    parent = parent[step]
+                if value is ...:
+                    if not isinstance(parent, dict):
+                        continue
+                    del parent[path[-1]]
+                else:
+                    parent[path[-1]] = value
+                accepted += _same_as_full(d)
+    assert accepted  # some replacements stay valid (e.g. another unit, count or number)
