@@ -363,29 +363,34 @@ def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list
     return entries, [d.as_dict() for d in errors], pack
 
 
-#: fewest species in a chunk (the fit is batched across a chunk's species)
-CHUNK_MIN = 25
+#: most species in one chunk.  The fit, the tables and the writers are batched across a
+#: chunk's species, and each batch has a fixed cost (about 30 ms per call, mostly the fit's
+#: numpy calls per Lawson pass, whatever the number of species): few large chunks are
+#: cheaper, up to the memory a chunk holds.
+CHUNK_MAX = 1000
+#: fewest species in a chunk of a one-process build (its chunks pace the progress bar)
+SERIAL_CHUNK_MIN = 250
 
 
 def _chunks(todo: list, jobs: int) -> list[list]:
-    """``todo`` cut into chunks: tenths for one process (progress), and for several ever
-    smaller ones — each a 1/(2·jobs) share of what is left — so the workers finish together.
+    """``todo`` cut into chunks: for several processes, equal chunks, a whole number of
+    them per process (the workers start together and finish together); for one, tenths
+    of at least :data:`SERIAL_CHUNK_MIN` species (for the progress bar).
 
     >>> [len(c) for c in _chunks(list(range(1000)), 2)]
-    [250, 188, 141, 106, 79, 59, 45, 33, 25, 25, 25, 24]
+    [500, 500]
+    >>> [len(c) for c in _chunks(list(range(2500)), 2)]
+    [625, 625, 625, 625]
     >>> [len(c) for c in _chunks(list(range(1000)), 1)]
-    [100, 100, 100, 100, 100, 100, 100, 100, 100, 100]
+    [250, 250, 250, 250]
     """
     n = len(todo)
     if jobs == 1:
-        size = max(CHUNK_MIN, -(-n // 10))
+        size = min(CHUNK_MAX, max(SERIAL_CHUNK_MIN, -(-n // 10)))
         return [todo[i: i + size] for i in range(0, n, size)]
-    chunks, i = [], 0
-    while i < n:
-        size = max(CHUNK_MIN, -(-(n - i) // (2 * jobs)))
-        chunks.append(todo[i: i + size])
-        i += size
-    return chunks
+    k = jobs * -(-n // (jobs * CHUNK_MAX))
+    ends = [n * j // k for j in range(k + 1)]
+    return [todo[a:b] for a, b in zip(ends, ends[1:]) if b > a]
 
 
 def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progress):
