@@ -58,6 +58,35 @@ def test_round_sig_is_what_e15_prints():
         assert round_sig(x) == float(e15(x))
 
 
+def test_round_sig_and_last_digit_are_those_of_the_printed_text():
+    """round_sig and last_digit (made by arithmetic where that gives the same float) against
+    the E15.8 text read back and its exponent: random magnitudes, nine-digit decimals
+    and the halves between them (ties), their floating-point neighbours, values next to
+    powers of ten and to 9.999999995·10^e (which print with the next exponent)."""
+    from pipeline.writers.formats import e15
+    from pipeline.writers.rounding import last_digit
+
+    rng = random.Random(12)
+    values = []
+    for _ in range(20000):
+        e = rng.randint(-20, 32)
+        kind = rng.randrange(4)
+        if kind == 0:
+            x = rng.uniform(1, 10) * 10.0**e
+        elif kind == 1:  # a nine-digit decimal or the half between two
+            x = (rng.randrange(10**8, 10**9) + rng.choice((0.0, 0.5))) * 10.0 ** (e - 8)
+        elif kind == 2:
+            x = float(rng.choice(("1e%d", "9.999999995e%d", "9.9999999949999e%d")) % e)
+        else:
+            x = 10.0**e
+        x = np.nextafter(x, rng.choice((-np.inf, np.inf))) if rng.random() < 0.4 else x
+        values.append(float(x) * rng.choice((1, -1)))
+    for x in values:
+        text = e15(x)
+        assert round_sig(x) == float(text), x
+        assert last_digit(x) == 10.0 ** (int(text.rpartition("E")[2]) - 8), x
+
+
 def test_bundled_fits_meet_the_bars_as_printed():
     _, _, _, fits, _ = small_build()
     for fit in fits:

@@ -65,6 +65,12 @@ def round_sig(x: float) -> float:
     Negative zero becomes zero; magnitudes below 1e-99 (which would need a
     three-digit exponent) print as zero.
 
+    Made without the text where that gives the same float: p = x·10^k with
+    10^8 ≤ |p| < 10^9 (k ≤ 22, so 10^k is exact) is within 6e-8 of the exact
+    product, so round(p) is the nine digits "%.8E" prints unless p lies that close
+    to a half; and the quotient of that integer by 10^k, rounded once, is the
+    float nearest the printed decimal, which is what reading it back gives.
+
     >>> round_sig(3.1415926535)
     3.14159265
     >>> round_sig(-1.0208999e-3 - 1e-14)
@@ -72,6 +78,13 @@ def round_sig(x: float) -> float:
     """
     x = float(x)
     ax = abs(x)
+    if 1e-14 <= ax < 1e30:
+        k = 8 - math.floor(math.log10(ax))
+        p = x * _POW10[k] if k >= 0 else x / _POW10[-k]
+        if 1e8 <= abs(p) < 1e9:
+            r = math.remainder(p, 1.0)  # p − round(p), exact
+            if abs(r) < 0.4999999:
+                return (p - r) / _POW10[k] if k >= 0 else (p - r) * _POW10[-k]
     if ax < 1e-99:
         return 0.0
     if not ax < 1e100:  # also inf and nan
@@ -79,6 +92,10 @@ def round_sig(x: float) -> float:
             raise ValueError(f"cannot print {x!r} as a coefficient")
         raise ValueError(f"{x!r} does not fit an E15.8 field")
     return float(f"{x:.8E}") + 0.0  # SIGNIFICANT = 9 digits
+
+
+#: 10^0 … 10^22, the powers of ten that are exact doubles
+_POW10 = tuple(10.0**k for k in range(23))
 
 
 def _round_all(xs) -> tuple:
@@ -102,6 +119,10 @@ def round_temperature(t: float) -> float:
 def last_digit(x: float) -> float:
     """The value of one unit in the last printed digit of ``x`` (0 for zero).
 
+    The exponent "%.8E" prints is that of 10^⌊log10|x|⌋ when x·10^k (as in
+    :func:`round_sig`) lies in [10^8, 10^9 − 0.6], i.e. cannot carry into the next
+    power of ten; else it is read from the text.
+
     >>> last_digit(3.5)
     1e-08
     >>> last_digit(-2.5e-3)
@@ -109,6 +130,12 @@ def last_digit(x: float) -> float:
     """
     if x == 0.0:
         return 0.0
+    ax = abs(x)
+    if 1e-14 <= ax < 1e30:
+        e = math.floor(math.log10(ax))
+        p = ax * _POW10[8 - e] if e <= 8 else ax / _POW10[e - 8]
+        if 1e8 <= p < 999999999.4:
+            return 10.0 ** (e - (SIGNIFICANT - 1))
     exponent = int(f"{x:.{SIGNIFICANT - 1}E}".rpartition("E")[2])
     return 10.0 ** (exponent - (SIGNIFICANT - 1))
 
