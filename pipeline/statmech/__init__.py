@@ -98,7 +98,11 @@ def sorted_terms(species_list, T, pressure: float = C.bar):
     n_linear = kinds.count(_LINEAR)
 
     mass = np.array([float(sp.mass) for sp in group])
-    s = translation(mass[:, None], T, pressure).s_r  # a new (S, m) array
+    unique, which = np.unique(mass, return_inverse=True)  # isomers share a translation row
+    if unique.size < mass.size:
+        s = translation(unique[:, None], T, pressure).s_r[which]
+    else:
+        s = translation(mass[:, None], T, pressure).s_r  # a new (S, m) array
     h = np.full(s.shape, 2.5)  # translation: (H−H0)/RT = Cp/R = 5/2
     c = np.full(s.shape, 2.5)
 
@@ -124,7 +128,8 @@ def sorted_terms(species_list, T, pressure: float = C.bar):
     for lo, hi in ((0, n_nonlinear), (n_nonlinear, n_nonlinear + n_linear)):
         count = [modes[i] for i in order[lo:hi] if modes[i]]  # the block's first rows
         if count:
-            freqs = np.concatenate([harmonic_frequencies(sp) for sp in group[lo : lo + len(count)]])
+            # harmonic_frequencies of the block's species, one after the other
+            freqs = np.array([f for sp in group[lo : lo + len(count)] for f in sp.frequencies], dtype=float)
             starts = np.cumsum([0] + count[:-1])
             add(slice(lo, lo + len(count)), Terms(*harmonic_groups(theta(freqs), starts, T)))
     ground = []  # (row, S/R) of species whose electronic levels all lie at zero energy

@@ -37,11 +37,12 @@ def linear_levels(theta_r, T_max: float, depth: float = 60.0, count_only: bool =
 def _mulholland(theta_r, T) -> Terms:
     """ln q = ln(T/θ) + ln P(y), P = 1 + y/3 + y²/15 + 4y³/315, y = θ/T."""
     y = theta_r / T
-    P = 1 + y / 3 + y**2 / 15 + 4 * y**3 / 315
-    dP = 1 / 3 + 2 * y / 15 + 12 * y**2 / 315
+    y2 = y * y  # y**2 (numpy squares by this product)
+    P = 1 + y / 3 + y2 / 15 + 4 * y**3 / 315
+    dP = 1 / 3 + 2 * y / 15 + 12 * y2 / 315
     d2P = 2 / 15 + 24 * y / 315
     h = 1 - y * dP / P
-    cv = 1 + y * y * (d2P * P - dP * dP) / P**2
+    cv = 1 + y2 * (d2P * P - dP * dP) / P**2
     s = np.log(T / theta_r) + np.log(P) + h
     return Terms(s, h, cv)
 
@@ -136,12 +137,18 @@ def _exact_sums(theta_r, exact, T):
 
 
 def _row_level_sums(theta, g, T) -> Terms:
-    """:func:`pipeline.statmech.terms.level_sum` with levels ``theta[r]`` (from 0) at ``T[r]``, row by row."""
-    x = theta / T[:, None]
-    w = g[None, :] * np.exp(-x)
+    """:func:`pipeline.statmech.terms.level_sum` with levels ``theta[r]`` (from 0) at ``T[r]``, row by row.
+
+    The same operations on −x = θ/(−T) instead of x (each rounds the same up to its sign):
+    w = g e^{−x}, Σ w x = −Σ w (−x), Σ w x x = Σ [w (−x)] (−x).
+    """
+    xn = theta / -T[:, None]
+    w = np.exp(xn)
+    w *= g[None, :]
     q = w.sum(axis=1)
-    m1 = (w * x).sum(axis=1) / q
-    m2 = (w * x * x).sum(axis=1) / q
+    wx = np.multiply(w, xn, out=w)  # −w x
+    m1 = np.negative(wx.sum(axis=1)) / q
+    m2 = np.multiply(wx, xn, out=wx).sum(axis=1) / q
     return Terms(np.log(q) + m1, m1, np.maximum(m2 - m1 * m1, 0.0))
 
 
