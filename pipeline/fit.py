@@ -1251,6 +1251,9 @@ def _warnings(fit, cp_err: PropertyError, threshold, cp_range, ceiling, cond, sl
         out.append(f"poor fit: max Cp error {100 * cp_err.max_rel:.2f} % at {cp_err.t_rel:g} K "
                    f"exceeds {100 * threshold:.2f} %")
     lo_cp, hi_cp = cp_range
+    if ceiling is not None and type(ceiling) is not float:  # e.g. a ClassicalCeiling: its value if needed
+        lower = getattr(ceiling, "lower", None)
+        ceiling = None if lower is not None and hi_cp <= lower and lo_cp >= 2.5 else float(ceiling)
     near = lo_cp < 2.5 or (ceiling is not None and hi_cp > ceiling)
     if near and slack is not None:
         near = lo_cp - slack <= 0 or (ceiling is not None and hi_cp + slack > ceiling * (1 + CLASSICAL_MARGIN))
@@ -1290,9 +1293,10 @@ def fit_table(table, *, tlow: float = 200.0, tmid: float | str = "auto", thigh: 
         Also make d²(Cp/R)/dT² continuous at Tmid.
     formula, charge
         Copied into the :class:`Nasa7Fit`.
-    cp_r_ceiling : float, optional
+    cp_r_ceiling : float or ClassicalCeiling, optional
         Classical high-temperature limit of Cp/R (:func:`classical_cp_r`);
-        the fit is flagged if its Cp/R exceeds it by more than 1 %.
+        the fit is flagged if its Cp/R exceeds it by more than 1 %.  A
+        :class:`ClassicalCeiling` is evaluated only if the fit needs its value.
     with_limit : bool
         Also solve the linear programme for the exact minimax limit
         (:func:`minimax_limit`) and store it in the quality.
@@ -1403,6 +1407,49 @@ def classical_cp_r(species, tlow: float = 200.0, thigh: float = 6000.0) -> float
     return value
 
 
+class ClassicalCeiling:
+    """:func:`classical_cp_r` of a species, computed when first asked for (``float(c)``).
+
+    ``lower`` [Cp/R] is a lower bound that costs nothing: each torsion counted as 1, a
+    ``diatomic`` level sum as 2 and excited electronic levels as 0 (the least each
+    contributes to :func:`classical_cp_r`), slightly reduced against rounding.  The
+    fit's warnings need the value only where the fitted Cp/R exceeds ``lower`` (or
+    drops below 5/2), so the level sums, torsions and Schottky terms are mostly not
+    evaluated.
+
+    >>> import pipeline.species as sp
+    >>> h2o = sp.Species(name="H2O", formula=(("H", 2), ("O", 1)), shape="nonlinear", symmetry=2,
+    ...                  mass=18.015 * C.atomic_mass, sources=("x",), formation_enthalpy=0.0,
+    ...                  rotational_constants=(2788.0, 1452.0, 928.0),
+    ...                  frequencies=(365705.0, 159475.0, 375593.0))
+    >>> c = ClassicalCeiling(h2o, 200.0, 6000.0)
+    >>> c.lower <= float(c) == classical_cp_r(h2o)
+    True
+    """
+
+    __slots__ = ("species", "tlow", "thigh", "lower", "_value")
+
+    def __init__(self, species, tlow: float = 200.0, thigh: float = 6000.0):
+        self.species, self.tlow, self.thigh, self._value = species, tlow, thigh, None
+        if species.diatomic is not None:
+            base = 2.5 + 2.0
+        else:
+            base = 2.5 + {"atom": 0.0, "linear": 1.0, "nonlinear": 1.5}[species.shape]
+            if species.shape != "atom":
+                from pipeline.statmech import harmonic_frequencies
+
+                base += float(len(harmonic_frequencies(species)))
+        self.lower = (base + float(len(species.torsions or ()))) * (1.0 - 1e-12)
+
+    def __float__(self) -> float:
+        if self._value is None:
+            self._value = classical_cp_r(self.species, self.tlow, self.thigh)
+        return self._value
+
+    def __repr__(self) -> str:
+        return f"ClassicalCeiling({self.species.name!r}, {self.tlow!r}, {self.thigh!r})"
+
+
 @functools.lru_cache(maxsize=8)
 def _classical_grid(tlow: float, thigh: float) -> np.ndarray:
     """The 60 temperatures [K] on which :func:`classical_cp_r` looks for the largest contributions
@@ -1423,13 +1470,14 @@ def fit_options(species, settings) -> dict:
     """fit_table keyword arguments for one species under build ``settings``.
 
     Applies the species file's ``fit:`` overrides (Settings.for_species) and
-    adds formula, charge and the classical Cp ceiling.
+    adds formula, charge and the classical Cp ceiling (a :class:`ClassicalCeiling`,
+    evaluated only where a fit comes near it; ``float()`` gives its value).
     """
     # Settings.for_species applies the species' fit: block; without one it would only copy
     s = settings if species.fit == _no_overrides() else settings.for_species(species)
     return dict(tlow=float(s.tmin), tmid=s.tmid if s.tmid == "auto" else float(s.tmid),
                 thigh=float(s.tmax), cp_warning=float(s.cp_warning), formula=species.formula,
-                charge=species.charge, cp_r_ceiling=classical_cp_r(species, s.tmin, s.tmax))
+                charge=species.charge, cp_r_ceiling=ClassicalCeiling(species, float(s.tmin), float(s.tmax)))
 
 
 # --------------------------------------------------------------------------

@@ -304,6 +304,31 @@ def test_classical_limit(database):
     assert any("classical" in w for w in low.quality.warnings)
 
 
+def test_lazy_ceiling_warns_as_its_value(starter):
+    """fit_options gives a ClassicalCeiling, evaluated only where a fit comes near it: its
+    lower bound is below the value, and the warnings are those of the value itself — for
+    the bundled species, and with a value moved down to 2 % under the fit's own largest
+    Cp/R (or to the lower bound, whichever is higher), compared with that value as a float."""
+    from pipeline.fit import ClassicalCeiling
+
+    species, tables, fits = starter
+    for sp, table, fit in zip(species, tables, fits):
+        lazy = ClassicalCeiling(sp, fit.tlow, fit.thigh)
+        assert lazy.lower <= float(lazy) == classical_cp_r(sp, fit.tlow, fit.thigh), sp.name
+        opts = fit_options(sp, Settings())
+        eager = fit_tables([table], [{**opts, "cp_r_ceiling": float(opts["cp_r_ceiling"])}])[0]
+        assert eager.quality == fit.quality, sp.name
+        keep = (table.T >= fit.tlow) & (table.T <= fit.thigh)
+        top = float(fit.cp_r(table.T[keep]).max())
+        below = ClassicalCeiling(sp, fit.tlow, fit.thigh)
+        below._value = max(below.lower, top / 1.02)  # a value the lower bound still holds for
+        forced = fit_tables([table], [{**opts, "cp_r_ceiling": below}])[0]
+        forced_f = fit_tables([table], [{**opts, "cp_r_ceiling": below._value}])[0]
+        assert forced.quality == forced_f.quality, sp.name
+        if below._value < top / 1.01:
+            assert any("classical" in w for w in forced.quality.warnings), sp.name
+
+
 def n2_low_range():
     """N2 low-range (300–1000 K) coefficients of GRI-Mech 3.0 as shipped with cantera (gri30.yaml)."""
     ct = pytest.importorskip("cantera")
