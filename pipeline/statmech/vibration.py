@@ -71,7 +71,8 @@ def harmonic_groups(theta_v, starts, T):
     # x capped at 700 where eˣ would overflow (terms below e^-690 ≈ 1e-300); the cap only
     # matters when some θ/T reaches it (division rounds monotonically, so max θ / min T bounds all)
     cap = not (T.min() > 0.0 and theta_v.max() / T.min() < 700.0)
-    room = max(CHUNK, int(size.max()) * m)  # values per block, so the work stays in cache
+    # values per block, so the work stays in cache (and no more than all of them)
+    room = max(min(CHUNK, theta_v.size * m), int(size.max()) * m)
     x_, e_, h_, w_ = (np.empty(room) for _ in range(4))
     sizes = size[order].tolist()
     edges = [0] + [i for i in range(1, G) if sizes[i] != sizes[i - 1]] + [G]
