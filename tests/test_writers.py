@@ -115,35 +115,27 @@ def test_published_coefficients_perturbed_meet_the_bars_as_printed(source):
         assert np.max(np.abs(back.cp_r(T) / fit.cp_r(T) - 1)) < 1e-5, f.name
 
 
-def test_aimed_search_tries_the_next_candidate_when_one_fails_its_final_check(monkeypatch):
-    """A candidate that passes the search's window test but fails the exact check as
-    printed gives way to the next one (the search used to give up there).  Simulated by
-    letting the first candidate of each search pass the window test."""
+def test_aimed_search_takes_a_candidate_exactly_when_it_meets_the_targets_as_printed(monkeypatch):
+    """The search keeps a candidate when its printed coefficients meet every target
+    (:func:`_meets`), and goes on otherwise: the flag of each state it makes is _meets of
+    that state's coefficients, and each answer meets its targets.  Checked on every state
+    made while printing the small build's and 20 GRI-Mech 3.0 fits, about half of them
+    failing."""
     from pipeline.writers import rounding
 
-    searches = []
-    aimed, state, meets = rounding._aimed, rounding._state, rounding._meets
-    monkeypatch.setattr(rounding, "_aimed", lambda *args: searches.append(args) or aimed(*args))
+    states, answers = [], []
+    state, aimed = rounding._state, rounding._aimed
+    monkeypatch.setattr(rounding, "_state", lambda *args: states.append((args, state(*args))) or states[-1][1])
+    monkeypatch.setattr(rounding, "_aimed", lambda *args: answers.append((args, aimed(*args))) or answers[-1][1])
     for fit in small_build()[3] + cantera_fits("gri30.yaml")[:20]:
         printed_fit(fit)
-    monkeypatch.setattr(rounding, "_aimed", aimed)
-    failed_first = 0
-    for args in searches:
-        answer = aimed(*args)
-        calls = []
-
-        def first_passes(a5, refix, checks):
-            a, x6, x7, ok = state(a5, refix, checks)
-            calls.append(meets(a, checks))
-            return a, x6, x7, ok or len(calls) == 1
-
-        monkeypatch.setattr(rounding, "_state", first_passes)
-        again = aimed(*args)
-        monkeypatch.setattr(rounding, "_state", state)
-        if not calls[0]:  # the first candidate fails as printed: the search must go on to the answer
-            failed_first += 1
-            assert again == answer
-    assert failed_first >= len(searches) // 2 > 0, (failed_first, len(searches))
+    failed = 0
+    for (a5, refix, checks), (a, x6, x7, ok) in states:
+        assert ok == rounding._meets(a, checks), (a5, refix)
+        failed += not ok
+    assert 0 < failed < len(states) and len(answers) > 5, (failed, len(states), len(answers))
+    for args, a in answers:
+        assert a is None or rounding._meets(a, args[-1])
 
 
 def test_printing_is_idempotent():

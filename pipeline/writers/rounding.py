@@ -203,8 +203,8 @@ def _meets(a, checks: tuple) -> bool:
 
 def _state(a5, refix: bool, checks: tuple):
     """Printed a1 … a7 from printed a1 … a5 — a1 re-fixed for Cp if ``refix``, a6
-    and a7 re-derived for H and S at T — the exact a6 and a7, and whether every
-    target of ``checks`` (:func:`_checks`) is met (the windows compared as ratios)."""
+    and a7 re-derived for H and S at T — the exact a6 and a7, and whether they meet
+    every target of ``checks`` (:func:`_meets` of them: the same sums, compared alike)."""
     c0, c1, c2, c3, c4, h0, h1, h2, h3, h4, s0, s1, s2, s3, s4, T, th, wh, ts, ws, with_cp, tcp, wcp = checks
     a0, a1, a2, a3, a4 = a5
     if refix:
@@ -214,9 +214,9 @@ def _state(a5, refix: bool, checks: tuple):
     x6 = (th - dh) * T
     x7 = ts - ds
     a6, a7 = round_sig(x6), round_sig(x7)
-    ok = abs(dh + a6 / T - th) / wh <= 1.0 and abs(ds + a7 - ts) / ws <= 1.0
+    ok = abs(dh + a6 / T - th) <= wh and abs(ds + a7 - ts) <= ws
     if ok and with_cp:
-        ok = abs(0.0 + c0 * a0 + c1 * a1 + c2 * a2 + c3 * a3 + c4 * a4 + 0.0 - tcp) / wcp <= 1.0
+        ok = abs(0.0 + c0 * a0 + c1 * a1 + c2 * a2 + c3 * a3 + c4 * a4 - tcp) <= wcp
     return (a0, a1, a2, a3, a4, a6, a7), x6, x7, ok
 
 
@@ -350,7 +350,7 @@ def _aimed(base: list[float], T: float, targets: dict, span, start, checks: tupl
     else:
         primary = {q: list(held[q].items()) for q in ("h", "s")}
     fine = sorted(knobs, key=lambda j: abs(held["h"][j]) + abs(held["s"][j]))
-    fine_effects = [(j2, q, held[q][j2]) for j2 in fine for q in ("h", "s") if held[q][j2]]
+    fine_effects = [(j2, iq, held[q][j2]) for j2 in fine for iq, q in enumerate(("h", "s")) if held[q][j2]]
     grid = (("h", x6, g6, round(x6 / g6)), ("s", x7, g7, round(x7 / g7)))
     tried = 0
     for offs in ((0,), (1, -1), (2, -2)):  # candidates by grid distance, then by Cp/R change
@@ -371,18 +371,18 @@ def _aimed(base: list[float], T: float, targets: dict, span, start, checks: tupl
             trial = list(base)
             trial[j] = round_sig(base[j] + k * steps[j])
             a, x6t, x7t, ok = _state(trial, cp_fixed, checks)
-            if ok and _meets(a, checks):
+            if ok:
                 return a
-            sides = {"h": (x6t, g6), "s": (x7t, g7)}  # a1 as re-fixed; correct the small miss with a1 held
+            # a1 as re-fixed; correct the small miss (to the nearest grid point) with a1 held
+            misses = (round(x6t / g6) * g6 - x6t, round(x7t / g7) * g7 - x7t)
             for j2, q, e2 in fine_effects:
-                x, g = sides[q]
-                k2 = round((round(x / g) * g - x) / e2)
+                k2 = round(misses[q] / e2)
                 if not k2 or abs(k2) * reach[j2] > limit:
                     continue
                 trial2 = list(a[:5])
                 trial2[j2] = round_sig(a[j2] + k2 * steps[j2])
                 a2, _, _, ok2 = _state(trial2, False, checks)
-                if ok2 and _meets(a2, checks):
+                if ok2:
                     return a2
     return None
 
@@ -394,9 +394,8 @@ def _balanced(src, T: float, targets: dict, span, what: str, name: str) -> tuple
         return plain
     base = list(plain[:5])
     start = _state(base, "cp" in targets, checks)
-    a = start[0]  # a6, a7 (and a1 for Cp) re-derived from the rounded a1 … a5: _close(base)
-    if _meets(a, checks):
-        return a
+    if start[3]:  # a6, a7 (and a1 for Cp) re-derived from the rounded a1 … a5 (_close(base)) meet the targets
+        return start[0]
     a = _aimed(base, T, targets, span, start, checks) or _nudged(base, T, targets, span)
     if a is None:
         raise ValueError(f"{name}: no printed coefficients meet {what} (nudges of up to three last digits tried)")
