@@ -147,6 +147,7 @@ def batch_fragments(items) -> list:
     """
     out: list = []
     steps: dict = {}  # the rows of the table step by fit grid (the species of a batch mostly share one)
+    _LOGS.clear()  # ln T by fit grid, for this batch only (like ``steps``)
     for start in range(0, len(items), CHUNK):
         chunk = items[start:start + CHUNK]
         results: list = [None] * len(chunk)
@@ -384,13 +385,14 @@ def _evaluate(group: list) -> None:
     rows of it) its table temperatures, then 298.15 K, Tmid, Tmid; the table data
     are laid out alike, so one index serves both.
     """
-    from pipeline.nasa7 import cp_r, h_rt, s_r
+    from pipeline.nasa7 import cp_r, h_rt
 
     n = len(group)
     tmids = np.array([sp.printed.tmid for sp in group])
     tail = np.empty((n, 3))
     tail[:, 0], tail[:, 1], tail[:, 2] = T_REF, tmids, tmids
     pieces = {f: [] for f in ("T", "cp", "s", "h_minus_h298", "g_fn", "h")}
+    logs = []  # ln T of the points, from each fit grid's once (np.log of the same numbers: the same bits)
     sizes, grid_sizes, steps = [], [], []
     at = 0
     for i, sp in enumerate(group):
@@ -401,6 +403,10 @@ def _evaluate(group: list) -> None:
             if extra:
                 parts.append(getattr(sp.at_step, f))
             parts.append(tail[i] if f == "T" else _NO_VALUES)
+        logs.append(_log_of(sp.table.T))
+        if extra:
+            logs.append(np.log(np.asarray(sp.at_step.T, dtype=float)))
+        logs.append(np.log(tail[i]))
         sizes.append(nf + extra + 3)
         grid_sizes += (nf, extra + 3)
         steps.append(sp.rows + at if extra == 0 else np.arange(at + nf, at + nf + extra))
@@ -415,7 +421,9 @@ def _evaluate(group: list) -> None:
     ranges[:, 0::2] = np.array([sp.printed.low for sp in group], dtype=float).T
     ranges[:, 1::2] = np.array([sp.printed.high for sp in group], dtype=float).T
     a = ranges.take(np.repeat(2 * np.arange(n), sizes) + high, axis=1)
-    cp_n, h_n, s_n = cp_r(a, T), h_rt(a, T), s_r(a, T)
+    cp_n, h_n = cp_r(a, T), h_rt(a, T)
+    # s_r(a, T) of pipeline.nasa7, term for term, with ln T looked up
+    s_n = a[0] * np.concatenate(logs) + T * (a[1] + T * (a[2] / 2 + T * (a[3] / 3 + T * a[4] / 4))) + a[6]
     jumps = [np.abs(x[ends - 1] - x[ends - 2]) / np.maximum(np.abs(x[ends - 2]), 1.0) for x in (cp_n, h_n, s_n)]
     continuity = np.maximum(np.maximum(jumps[0], jumps[1]), jumps[2])  # Nasa7Fit.continuity()
     cp, h, s = C.R * cp_n, C.R * T * h_n, C.R * s_n
@@ -461,6 +469,21 @@ def _evaluate(group: list) -> None:
     for i, (sp, jump) in enumerate(zip(group, continuity.tolist())):
         sp.continuity = jump
         sp.errors = (largest[0][i], largest[1][i], largest[2][i]) if found[i] else (None, None, None)
+
+
+_LOGS: dict = {}
+
+
+def _log_of(T) -> np.ndarray:
+    """``np.log`` of a fit grid, made once per grid array in a batch (remembered by identity, with the array)."""
+    known = _LOGS.get(id(T))
+    if known is not None and known[0] is T:
+        return known[1]
+    if len(_LOGS) > 64:
+        _LOGS.clear()
+    logT = np.log(np.asarray(T, dtype=float))
+    _LOGS[id(T)] = (T, logT)
+    return logT
 
 
 @functools.lru_cache(maxsize=64)
