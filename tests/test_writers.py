@@ -497,3 +497,16 @@ def test_builds_in_separate_processes_are_byte_identical():
         run = subprocess.run([sys.executable, "-c", _DIGESTS, tests], capture_output=True, text=True, cwd=ROOT,
                              env={**os.environ, "PYTHONHASHSEED": seed}, check=True)
         assert json.loads(run.stdout) == here
+
+
+def test_remembered_flow_mappings_are_those_of_yaml_value():
+    """formats._flow_cached remembers a small mapping's text by its items and their types:
+    mappings whose values compare equal but differ in type or sign (1, 1.0, True; 0.0, -0.0)
+    or are NaN must still get the text yaml_value gives each, asked first or again."""
+    from pipeline.writers import formats
+
+    values = [1, 1.0, True, 0, 0.0, -0.0, False, None, "1", float("nan"), float("inf"), 2.5]
+    mappings = [{"a": v} for v in values] + [{"C": 1, "H": 4}, {"C": 1.0, "H": 4}, {"C": True, "H": 4}]
+    for _ in range(2):  # the second pass reads what the first remembered
+        for m in mappings:
+            assert formats._flow_cached(m) == formats.yaml_value(m), m
