@@ -364,7 +364,7 @@ def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list
 
 
 #: most species in one chunk.  The fit, the tables and the writers are batched across a
-#: chunk's species, and each batch has a fixed cost (about 30 ms per call, mostly the fit's
+#: chunk's species, and each batch has a fixed cost (about 15 ms per call, mostly the fit's
 #: numpy calls per Lawson pass, whatever the number of species): few large chunks are
 #: cheaper, up to the memory a chunk holds.
 CHUNK_MAX = 1000

@@ -380,11 +380,6 @@ _SYM[_IU] = np.arange(15)
 _SYM[_IU[1], _IU[0]] = np.arange(15)
 
 
-def _unpack(F):
-    """(R, 15) upper-triangle entries → (R, 5, 5) symmetric."""
-    return np.take(F, _SYM.ravel(), axis=-1).reshape(F.shape[:-1] + (5, 5))
-
-
 def _normal(P, Cb, buf, mask, MqT, d, mm=None):
     """Weighted normal equations G δ = rhs, rows last: G (p, p, R), rhs (p, R).
 
