@@ -1,7 +1,5 @@
 """``python -m pipeline`` runs the ``statherm`` command line."""
 
-import sys
+from pipeline.cli import run
 
-from pipeline.cli import main
-
-sys.exit(main())
+run()

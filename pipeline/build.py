@@ -47,7 +47,7 @@ from pathlib import Path
 
 from pipeline import __version__
 from pipeline.cache import (
-    FORMAT, Cache, Lock, Progress, Unwritable, code_fingerprint, display_path, file_state,
+    FORMAT, Cache, Lock, Progress, Unwritable, code_fingerprint, display_path, fault, file_state,
     sha256_bytes, sha256_json, species_files,
 )
 from pipeline.diagnostics import Diagnostic, InputError
@@ -393,10 +393,13 @@ def _chunks(todo: list, jobs: int) -> list[list]:
     return [todo[a:b] for a, b in zip(ends, ends[1:]) if b > a]
 
 
-def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progress):
+def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progress, meanwhile=None):
     """Run :func:`_compute` over ``todo`` in ``jobs`` processes, in chunks (for the progress bar).
 
-    Returns (entries, error diagnostics as dicts, names of the cache packs written).
+    ``meanwhile()``, if given, runs in this process while the workers compute
+    (work the parent needs later, e.g. compiling the document templates).
+    Returns (entries, error diagnostics as dicts, names of the cache packs
+    written), in the order of ``todo``'s chunks whatever order they finish in.
     """
     entries: list[dict] = []
     errors: list[dict] = []
@@ -405,27 +408,117 @@ def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progres
         return entries, errors, packs
     jobs = max(1, min(jobs, len(todo) // 8 or 1))
     chunks = _chunks(todo, jobs)
-    pool = None
     if jobs == 1:
-        results = (_compute(chunk, settings, flags, cache_root) for chunk in chunks)
+        if meanwhile:
+            meanwhile()
+        results = enumerate(_compute(chunk, settings, flags, cache_root) for chunk in chunks)
     else:
-        import multiprocessing
-
-        pool = multiprocessing.get_context("fork" if sys.platform != "win32" else "spawn").Pool(jobs)
-        results = (r.get() for r in [pool.apply_async(_compute, (chunk, settings, flags, cache_root))
-                                     for chunk in chunks])
-    try:
-        done = 0
-        for chunk, (e, err, pack) in zip(chunks, results):
-            entries += e
-            errors += err
-            packs.add(pack)
-            done += len(chunk)
-            progress.update(done)
-    finally:
-        if pool is not None:
-            pool.terminate()  # as leaving ``with Pool()`` does; every result is in by now
+        results = _in_workers(chunks, jobs, (settings, flags, cache_root), meanwhile)
+    done = 0
+    by_chunk = {}
+    for i, result in results:
+        by_chunk[i] = result
+        done += len(chunks[i])
+        progress.update(done)
+    for i in range(len(chunks)):
+        e, err, pack = by_chunk[i]
+        entries += e
+        errors += err
+        packs.add(pack)
     return entries, errors, packs - {None}
+
+
+def _child(target, args: tuple, *, fork_only: bool = False):
+    """Start ``target(*args, conn)`` in a child process — forked where the platform can, so
+    that it shares what this one has imported and read — with ``conn`` the sending end of
+    a pipe.  Returns (process, receiving end), or None when ``fork_only`` and there is no
+    fork, or the process cannot be started."""
+    import multiprocessing
+
+    if fork_only and not hasattr(os, "fork"):
+        return None
+    ctx = multiprocessing.get_context("fork" if hasattr(os, "fork") else "spawn")
+    receive, send = ctx.Pipe(duplex=False)
+    child = ctx.Process(target=target, args=(*args, send), daemon=True)
+    try:
+        child.start()
+    except OSError:
+        receive.close()
+        send.close()
+        return None
+    send.close()
+    return child, receive
+
+
+class WorkerError(RuntimeError):
+    """The traceback of an exception raised in a build worker (the ``__cause__`` of its re-raise)."""
+
+
+def _in_workers(chunks: list[list], jobs: int, args: tuple, meanwhile=None):
+    """Compute ``chunks`` in ``jobs`` worker processes (worker w takes chunks w, w + jobs, …:
+    the chunks are of equal size); yields (chunk index, :func:`_compute` result) as each
+    arrives.  A worker's exception is raised here; a worker that dies (killed, out of
+    memory) raises :class:`WorkerError` instead of leaving the build waiting forever."""
+    import pickle
+    from multiprocessing.connection import wait
+
+    started = []
+    try:
+        for w in range(jobs):
+            mine = [(i, chunks[i]) for i in range(w, len(chunks), jobs)]
+            got = _child(_work, (mine, *args))
+            if got is None:
+                raise WorkerError("cannot start a build worker process")
+            started.append(got)
+        if meanwhile:
+            meanwhile()
+        pending = {conn: child for child, conn in started}
+        while pending:
+            for conn in wait(list(pending)):
+                try:
+                    i, result = pickle.loads(conn.recv_bytes())
+                except EOFError:  # the worker is done, or died
+                    child = pending.pop(conn)
+                    child.join()
+                    if child.exitcode:
+                        how = f"signal {-child.exitcode}" if child.exitcode < 0 else f"exit code {child.exitcode}"
+                        raise WorkerError(f"a build worker process ended early ({how})") from None
+                    continue
+                if i is None:
+                    exc, trace = result
+                    raise exc from WorkerError(trace)
+                yield i, result
+    finally:
+        for child, conn in started:
+            conn.close()
+            if child.is_alive():
+                child.terminate()
+            child.join()
+
+
+def _work(chunks, settings, flags, cache_root, conn) -> None:
+    """A build worker (child of :func:`_in_workers`): send (index, result) of each of its
+    chunks, or (None, (exception, traceback text)) and stop at the first exception."""
+    import pickle
+
+    try:
+        for i, chunk in chunks:
+            fault("worker")
+            conn.send_bytes(pickle.dumps((i, _compute(chunk, settings, flags, cache_root)),
+                                         protocol=pickle.HIGHEST_PROTOCOL))
+    except BaseException as exc:  # noqa: BLE001 - every failure goes to the parent, which reports it
+        import traceback
+
+        trace = traceback.format_exc()
+        try:
+            conn.send_bytes(pickle.dumps((None, (exc, trace)), protocol=pickle.HIGHEST_PROTOCOL))
+        except Exception:  # noqa: BLE001 - an exception that does not pickle: its text does
+            try:
+                conn.send_bytes(pickle.dumps((None, (WorkerError(f"{type(exc).__name__}: {exc}"), trace))))
+            except OSError:
+                pass  # the parent is gone
+    finally:
+        conn.close()
 
 
 # --------------------------------------------------------------------------
@@ -464,19 +557,13 @@ def _read_ahead(inputs: Inputs, cache: Cache | None, shard=None):
 
     known = cache.species_hashes() if cache is not None else set()
     files = [(sha, data) for name, _, data, sha in inputs.files if sha not in known and _in_shard(name, shard)]
-    if len(files) < READ_AHEAD_MIN or workers("auto") < 2 or not hasattr(os, "fork"):
+    if len(files) < READ_AHEAD_MIN or workers("auto") < 2:
         return None
-    import multiprocessing
+    started = _child(_read_files, (files,), fork_only=True)
+    if started is None:
+        return None
+    child, receive = started
     import pickle
-
-    ctx = multiprocessing.get_context("fork")
-    receive, send = ctx.Pipe(duplex=False)
-    child = ctx.Process(target=_read_files, args=(files, send), daemon=True)
-    try:
-        child.start()
-    except OSError:
-        return None
-    send.close()
 
     got: list[dict] = []
 
@@ -564,14 +651,16 @@ def _plan_read(inputs: Inputs, out: Path, cache: Cache | None, ahead, *, jobs, s
     plan.cached = len(by_file)
     plan.computed = len(todo)
     if todo:  # the compute modules load while the files are read (and before any fork)
-        import jinja2, pipeline.fit, pipeline.species, pipeline.thermo, pipeline.writers  # noqa: F401,E401
+        import pipeline.fit, pipeline.species, pipeline.thermo, pipeline.writers  # noqa: F401,E401
     docs = ahead() if ahead else {}
     todo = [(key, disp, data, docs.get(sha)) for key, disp, data, sha in todo]
     bar = Progress(len(todo), "statherm build", enabled=verbosity > 0, force=progress, start=started)
     try:
+        from pipeline.writers import load_templates  # only this process renders whole documents
+
         entries, errors, plan.fresh_packs = _compute_all(
             todo, settings, inputs.flags, cache.root.as_posix() if cache else None,
-            workers(jobs or settings.jobs), bar)
+            workers(jobs or settings.jobs), bar, meanwhile=load_templates if shard is None else None)
     finally:
         bar.close()
     plan.errors = [Diagnostic(**d) for d in errors]

@@ -130,6 +130,74 @@ def test_reading_ahead_leaves_bad_files_to_be_reported(tmp_path):
     assert "Traceback" not in err
 
 
+def test_worker_errors_come_in_file_order_whatever_finishes_first(tmp_path, monkeypatch):
+    """Bad files in several chunks of a two-worker build are reported as a serial build reports them."""
+    import pipeline.build as b
+    from pipeline.bench import synthesise
+
+    species = tmp_path / "species"
+    paths = synthesise(40, species)
+    for k in (3, 17, 25, 38):  # spread over the four chunks below
+        edit(paths[k], "symmetry: ", "symmetry: -")
+    monkeypatch.setattr(b, "CHUNK_MAX", 10)
+    said = {}
+    for jobs in ("1", "2"):
+        rc, _, err = run("build", "--species", str(species), "--out", str(tmp_path / jobs), "--jobs", jobs)
+        assert rc == 1
+        said[jobs] = [line for line in err.splitlines() if "symmetry" in line]
+    assert len(said["1"]) == 4 and said["2"] == said["1"]
+
+
+def test_a_killed_worker_fails_the_build_and_leaves_the_output(tmp_path):
+    """A worker process killed mid-build (STATHERM_FAULT=worker: SIGKILL before its first chunk) is
+    an error the parent reports; it neither waits forever nor writes anything."""
+    from pipeline.bench import synthesise
+
+    species, out = tmp_path / "species", tmp_path / "out"
+    paths = synthesise(24, species)  # enough for two workers
+    assert run("build", "--species", str(species), "--out", str(out), "--quiet")[0] == 0
+    before = snapshot(out)
+    for path in paths:  # all to compute again, in two workers
+        path.write_text(path.read_text(encoding="utf-8") + "notes: edited\n", encoding="utf-8")
+    proc = run_process("build", "--species", str(species), "--out", str(out), "--jobs", "2",
+                       env={"STATHERM_FAULT": "worker"}, timeout=120)
+    assert proc.returncode == 3, proc.stderr
+    assert f"worker process ended early (signal {signal.SIGKILL})" in proc.stderr
+    assert "Traceback" not in proc.stderr
+    assert snapshot(out) == before
+    assert run("build", "--species", str(species), "--out", str(out), "--quiet")[0] == 0
+    assert snapshot(out) != before
+
+
+def test_a_worker_exception_is_raised_in_the_parent_with_its_traceback():
+    import multiprocessing
+    import pickle
+
+    import pipeline.build as b
+
+    # settings=None makes _compute fail in the worker: the same exception type comes back
+    with pytest.raises(AttributeError) as caught:
+        list(b._in_workers([[("k", "x.yaml", b"name: X\n", None)]] * 2, 2, (None, {}, None)))
+    assert isinstance(caught.value.__cause__, b.WorkerError)
+    assert "in _compute" in str(caught.value.__cause__)  # the worker's traceback text
+
+    class Local(Exception):  # a local class does not pickle: the worker sends its text instead
+        pass
+
+    def fail(*_):
+        raise Local("no luck")
+
+    receive, send = multiprocessing.Pipe(duplex=False)
+    real, b._compute = b._compute, fail
+    try:
+        b._work([(0, [])], None, {}, None, send)
+    finally:
+        b._compute = real
+    i, (exc, trace) = pickle.loads(receive.recv_bytes())
+    assert i is None and isinstance(exc, b.WorkerError) and str(exc) == "Local: no luck"
+    assert "no luck" in trace
+
+
 def test_shard_writes_no_output(tmp_path):
     species, _ = database(tmp_path)
     dest = tmp_path / "fresh"

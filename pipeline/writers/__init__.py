@@ -579,6 +579,16 @@ def _check_record(name: str, record: str) -> None:
 # --------------------------------------------------------------------------
 
 
+#: the jinja2 templates of the whole documents :func:`assemble` renders
+DOCUMENT_TEMPLATES = ("thermo.dat.j2", "thermo.yaml.j2", "REPORT.md.j2")
+
+
+def load_templates() -> None:
+    """Import jinja2 and compile the document templates (a build does this while its workers compute)."""
+    for name in DOCUMENT_TEMPLATES:
+        formats.template(name)
+
+
 def assemble(fragments: list[dict[str, str]], settings) -> dict[str, bytes]:
     """The whole database from species fragments: output-relative path → bytes.
 
