@@ -139,7 +139,7 @@ def test_worker_errors_come_in_file_order_whatever_finishes_first(tmp_path, monk
     paths = synthesise(40, species)
     for k in (3, 17, 25, 38):  # spread over the four chunks below
         edit(paths[k], "symmetry: ", "symmetry: -")
-    monkeypatch.setattr(b, "CHUNK_MAX", 10)
+    monkeypatch.setattr(b, "CHUNK_MAX", 10)  # 40 species: four chunks
     said = {}
     for jobs in ("1", "2"):
         rc, _, err = run("build", "--species", str(species), "--out", str(tmp_path / jobs), "--jobs", jobs)
@@ -190,7 +190,7 @@ def test_a_worker_exception_is_raised_in_the_parent_with_its_traceback():
     receive, send = multiprocessing.Pipe(duplex=False)
     real, b._compute = b._compute, fail
     try:
-        b._work([(0, [])], None, {}, None, send)
+        b._work([[]], multiprocessing.Value("l", 0), None, {}, None, send)
     finally:
         b._compute = real
     i, (exc, trace) = pickle.loads(receive.recv_bytes())
@@ -702,3 +702,15 @@ def test_jobs_setting_auto_number_or_error(tmp_path):
     assert err.value.diagnostics[0].key == "jobs"
     proc = run_process("build", "--jobs", "0", "--out", str(tmp_path / "out"))
     assert proc.returncode == 2 and "--jobs" in proc.stderr and "Traceback" not in proc.stderr
+
+
+def test_bench_times_each_kind_of_build_and_leaves_no_build_folders(tmp_path):
+    from pipeline.bench import bench_size, table
+
+    r = bench_size(12, tmp_path, repeat=1, log=lambda _: None)
+    assert min(r["floor"], r["cold"], r["noop"], r["one"]) > 0
+    # the one-changed rebuild rewrote the edited species' table (the first file) and the whole files only
+    assert [rel for rel in r["rewritten"] if rel.startswith("tables/")] == ["tables/BX00000.csv"]
+    assert {"thermo.dat", "thermo.yaml", "provenance.json"} <= set(r["rewritten"])
+    assert sorted(os.listdir(tmp_path)) == ["floor.pack", "floor.py", "species"]
+    assert "| 12 |" in table([r])
