@@ -714,3 +714,20 @@ def test_bench_times_each_kind_of_build_and_leaves_no_build_folders(tmp_path):
     assert {"thermo.dat", "thermo.yaml", "provenance.json"} <= set(r["rewritten"])
     assert sorted(os.listdir(tmp_path)) == ["floor.pack", "floor.py", "species"]
     assert "| 12 |" in table([r])
+
+
+def test_a_build_asks_for_one_blas_thread_unless_the_user_chose(tmp_path):
+    import subprocess
+
+    from refdata import ROOT
+
+    species, _ = database(tmp_path)
+    code = ("import os, sys; from pipeline.cli import main; "
+            "rc = main(['build', '--species', sys.argv[1], '--out', sys.argv[2], '--quiet']); "
+            "print(rc, os.environ.get('OPENBLAS_NUM_THREADS'), 'numpy' in sys.modules)")
+    base = {k: v for k, v in os.environ.items() if k not in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")}
+    for given, expect in ((None, "1"), ("3", "3")):
+        env = dict(base, **({"OPENBLAS_NUM_THREADS": given} if given else {}))
+        done = subprocess.run([sys.executable, "-c", code, str(species), str(tmp_path / f"out-{given}")],
+                              capture_output=True, text=True, env=env, cwd=ROOT)
+        assert done.stdout.split() == ["0", expect, "True"], done.stderr
