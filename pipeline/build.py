@@ -559,53 +559,79 @@ def _read_ahead(inputs: Inputs, cache: Cache | None, shard=None):
     A cold build spends its first few tenths of a second importing numpy and
     scipy; with a second CPU, a child that needs only PyYAML
     (:mod:`pipeline.safeyaml`) reads the files meanwhile.  Returns a function
-    that waits for the child and gives {file sha256: document} (files it could
-    not read are left out: the worker reads them again and reports why), or
-    None when there is nothing worth doing, no second CPU or no fork.
+    that reads, in this process, the files the child has not yet taken (the two
+    take blocks of :data:`READ_BLOCK` files in turn from a shared counter, so
+    whichever is free first does the rest), waits for the child and gives
+    {file sha256: document} (files that could not be read are left out: the
+    worker reads them again and reports why).  None when there is nothing worth
+    doing, no second CPU or no fork.
     """
     from pipeline.settings import workers
 
     known = cache.species_hashes() if cache is not None else set()
     files = [(sha, data) for name, _, data, sha in inputs.files if sha not in known and _in_shard(name, shard)]
-    if len(files) < READ_AHEAD_MIN or workers("auto") < 2:
+    if len(files) < READ_AHEAD_MIN or workers("auto") < 2 or not hasattr(os, "fork"):
         return None
-    started = _child(_read_files, (files,), fork_only=True)
+    import multiprocessing
+    import pickle
+
+    import pipeline.safeyaml  # noqa: F401 - this process needs it too; loaded once, before the fork
+
+    taken = multiprocessing.get_context("fork").Value("l", 0)
+    started = _child(_read_files, (files, taken), fork_only=True)
     if started is None:
         return None
     child, receive = started
-    import pickle
 
     got: list[dict] = []
 
     def collect() -> dict:
         if not got:
+            docs = _read_some(files, taken)
             try:
-                got.append(pickle.loads(receive.recv_bytes()))
+                docs.update(pickle.loads(receive.recv_bytes()))
             except (EOFError, OSError, pickle.UnpicklingError):
-                got.append({})  # the child died: the workers read the files themselves
+                pass  # the child died: the workers read its files themselves
             finally:
                 receive.close()
                 child.join()
+            got.append(docs)
         return got[0]
 
     return collect
 
 
-def _read_files(files, conn) -> None:
-    """Child of :func:`_read_ahead`: send {sha256: document} of the files that read cleanly."""
-    import pickle
+#: files taken at a time from the counter :func:`_read_ahead` shares with its child
+READ_BLOCK = 16
 
+
+def _read_some(files, taken) -> dict:
+    """{sha256: document} of the blocks of ``files`` this process takes (``taken`` counts
+    the files taken by either process) until none is left, leaving out files that do not
+    read cleanly."""
     from pipeline.safeyaml import load_yaml
 
     docs = {}
-    for sha, data in files:
-        try:
-            doc = load_yaml(data.decode("utf-8"))
-        except Exception:  # noqa: BLE001 - any failure: the worker reads the file and says why
-            continue
-        if doc is not None:
-            docs[sha] = doc
-    conn.send_bytes(pickle.dumps(docs, protocol=pickle.HIGHEST_PROTOCOL))
+    while True:
+        with taken.get_lock():
+            start = taken.value
+            taken.value = start + READ_BLOCK
+        if start >= len(files):
+            return docs
+        for sha, data in files[start:start + READ_BLOCK]:
+            try:
+                doc = load_yaml(data.decode("utf-8"))
+            except Exception:  # noqa: BLE001 - any failure: the worker reads the file and says why
+                continue
+            if doc is not None:
+                docs[sha] = doc
+
+
+def _read_files(files, taken, conn) -> None:
+    """Child of :func:`_read_ahead`: send the documents of the blocks it takes."""
+    import pickle
+
+    conn.send_bytes(pickle.dumps(_read_some(files, taken), protocol=pickle.HIGHEST_PROTOCOL))
     conn.close()
 
 

@@ -198,6 +198,43 @@ def test_a_worker_exception_is_raised_in_the_parent_with_its_traceback():
     assert "no luck" in trace
 
 
+def test_read_ahead_gives_the_same_documents_whoever_reads_them(tmp_path, monkeypatch):
+    """The parent and the read-ahead child share the files; a child that reads none (or dies)
+    leaves them all to the parent; either way the documents are those of load_yaml."""
+    import pickle
+
+    import pipeline.build as b
+    from pipeline.bench import synthesise
+    from pipeline.safeyaml import load_yaml
+
+    species = tmp_path / "species"
+    synthesise(b.READ_AHEAD_MIN + 40, species)
+    (species / "zz-syntax.yaml").write_text("name: ZZ\nformula: {H: 2\n", encoding="utf-8")
+    inputs = b.Inputs(species, {})
+    direct = {sha: load_yaml(data.decode()) for name, _, data, sha in inputs.files if name != "zz-syntax.yaml"}
+    collect = b._read_ahead(inputs, None)
+    if collect is None:
+        pytest.skip("no fork or one CPU: nothing is read ahead")
+    assert collect() == direct and collect() is collect()
+
+    def lazy(files, taken, conn):  # a child that takes no file
+        conn.send_bytes(pickle.dumps({}))
+        conn.close()
+
+    def dying(files, taken, conn):  # a child that takes a block and dies
+        with taken.get_lock():
+            taken.value += b.READ_BLOCK
+        os._exit(1)
+
+    for child in (lazy, dying):
+        monkeypatch.setattr(b, "_read_files", child)
+        got = b._read_ahead(inputs, None)()
+        if child is lazy:
+            assert got == direct
+        else:  # the dead child's block is left to the workers
+            assert len(got) == len(direct) - b.READ_BLOCK and all(direct[k] == v for k, v in got.items())
+
+
 def test_shard_writes_no_output(tmp_path):
     species, _ = database(tmp_path)
     dest = tmp_path / "fresh"
