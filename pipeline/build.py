@@ -644,20 +644,23 @@ def _in_shard(name: str, shard: tuple[int, int] | None) -> bool:
 
 def _plan(inputs: Inputs, out: Path, cache: Cache | None, *, jobs: int | None, shard=None,
           keep_going: bool = False, verbosity: int = 1, progress: bool = False,
-          since_last: bool = False, started: float | None = None) -> Plan:
+          since_last: bool = False, started: float | None = None, reserve: bool = False) -> Plan:
     """What the output folder should contain; ``started`` (time.monotonic()) is when the
-    build began, from which the progress bar's one-second delay counts."""
+    build began, from which the progress bar's one-second delay counts.  With
+    ``reserve``, the temporaries of the new files are made while the workers compute
+    (:meth:`Cache.reserve`: for a first build into an output folder, which writes every file)."""
     ahead = _read_ahead(inputs, cache, shard)
     try:
         return _plan_read(inputs, out, cache, ahead, jobs=jobs, shard=shard, keep_going=keep_going,
-                          verbosity=verbosity, progress=progress, since_last=since_last, started=started)
+                          verbosity=verbosity, progress=progress, since_last=since_last, started=started,
+                          reserve=reserve)
     finally:
         if ahead:
             ahead()  # idempotent: waits for (and reaps) the child if an error came first
 
 
 def _plan_read(inputs: Inputs, out: Path, cache: Cache | None, ahead, *, jobs, shard, keep_going,
-               verbosity, progress, since_last, started) -> Plan:
+               verbosity, progress, since_last, started, reserve=False) -> Plan:
     from pipeline.settings import load_settings, workers
 
     _set_up_compute()  # before load_settings, which imports numpy
@@ -693,11 +696,16 @@ def _plan_read(inputs: Inputs, out: Path, cache: Cache | None, ahead, *, jobs, s
     todo = [(key, disp, data, docs.get(sha)) for key, disp, data, sha in todo]
     bar = Progress(len(todo), "statherm build", enabled=verbosity > 0, force=progress, start=started)
     try:
-        from pipeline.writers import load_templates  # only this process renders whole documents
+        from pipeline.writers import DOCUMENT_TEMPLATES, load_templates  # only this process renders documents
+
+        def meanwhile() -> None:  # while the workers compute
+            load_templates()
+            if reserve and cache is not None:  # a table per species, the documents and provenance.json
+                cache.reserve(len(todo) + len(DOCUMENT_TEMPLATES) + 1)
 
         entries, errors, plan.fresh_packs = _compute_all(
             todo, settings, inputs.flags, cache.root.as_posix() if cache else None,
-            workers(jobs or settings.jobs), bar, meanwhile=load_templates if shard is None else None)
+            workers(jobs or settings.jobs), bar, meanwhile=meanwhile if shard is None else None)
     finally:
         bar.close()
     plan.errors = [Diagnostic(**d) for d in errors]
@@ -959,8 +967,16 @@ def _build_locked(inputs, out, cache, t0, *, jobs, keep_going, verbosity, as_jso
         if verbosity > 1:
             _note(as_json, f"statherm: {out.as_posix()} is up to date ({len(inputs.files)} species)")
         return EXIT_OK
+    try:
+        return _build_planned(inputs, out, cache, manifest, t0, jobs=jobs, keep_going=keep_going,
+                              verbosity=verbosity, as_json=as_json, progress=progress)
+    finally:
+        cache.drop_reserved()
+
+
+def _build_planned(inputs, out, cache, manifest, t0, *, jobs, keep_going, verbosity, as_json, progress) -> int:
     plan = _plan(inputs, out, cache, jobs=jobs, keep_going=keep_going, verbosity=verbosity, progress=progress,
-                 since_last=manifest is not None, started=t0)
+                 since_last=manifest is not None, started=t0, reserve=manifest is None)
     if plan.errors and not keep_going:
         _emit(plan.errors + plan.warnings, verbosity, as_json)
         files = len({d.file for d in plan.errors})

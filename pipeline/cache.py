@@ -210,6 +210,7 @@ class Cache:
         self.out = out
         self.root = out / CACHE_DIR
         self._pack_cache: dict[str, dict] | None = None
+        self._reserved = 0  # empty temporaries tmp/PID-0 … made by reserve()
 
     # -- entries ------------------------------------------------------------
     #
@@ -369,6 +370,27 @@ class Cache:
     def journal_path(self) -> Path:
         return self.root / "journal.json"
 
+    def reserve(self, count: int) -> None:
+        """Make ``count`` empty temporaries for the next :meth:`commit` (as many as it will
+        probably write): a build does this while its workers compute, so that creating the
+        files (allocating their inodes, the costly part on a busy ext4) is not left to the
+        end.  Unused ones are removed by :meth:`commit` or :meth:`drop_reserved`."""
+        tmpdir, pid = os.path.join(self.root, "tmp"), os.getpid()
+        for i in range(self._reserved, count):
+            with open(os.path.join(tmpdir, f"{pid}-{i}"), "wb"):
+                pass
+            self._reserved = i + 1
+
+    def drop_reserved(self, keep: int = 0) -> None:
+        """Remove the reserved temporaries past the first ``keep``."""
+        tmpdir, pid = os.path.join(self.root, "tmp"), os.getpid()
+        for i in range(keep, self._reserved):
+            try:
+                os.unlink(os.path.join(tmpdir, f"{pid}-{i}"))
+            except FileNotFoundError:
+                pass
+        self._reserved = min(self._reserved, keep)
+
     def commit(self, writes: dict[str, bytes], deletes: list[str], manifest: dict) -> None:
         """Replace/delete output files as one recoverable step (see module docstring).
 
@@ -381,12 +403,14 @@ class Cache:
         moves = []
         pid = os.getpid()
         for i, (rel, data) in enumerate(sorted(writes.items())):
-            name = f"{pid}-{i}"
+            name = f"{pid}-{i}"  # a reserved temporary is opened, truncated and written
             with open(os.path.join(tmpdir, name), "wb") as fh:
                 fh.write(data)
             moves.append([name, rel])
             if i == len(writes) // 2:
                 fault("writing-temporaries")
+        self.drop_reserved(keep=len(writes))
+        self._reserved = 0  # the kept ones are moved into place below
         journal = {"format": FORMAT, "moves": moves, "deletes": sorted(deletes), "manifest": manifest}
         fault("before-journal")
         write_atomic(self.journal_path, dump_json(journal))

@@ -235,6 +235,29 @@ def test_read_ahead_gives_the_same_documents_whoever_reads_them(tmp_path, monkey
             assert len(got) == len(direct) - b.READ_BLOCK and all(direct[k] == v for k, v in got.items())
 
 
+def test_a_first_build_reserves_its_temporaries_and_leaves_none(tmp_path, monkeypatch):
+    """A first build into a folder makes its temporaries while computing (Cache.reserve): the
+    same bytes as without, nothing left in tmp/, also when it fails."""
+    from pipeline.cache import Cache
+
+    species, out = database(tmp_path)
+    asked = []
+    real = Cache.reserve
+    monkeypatch.setattr(Cache, "reserve", lambda self, n: asked.append(n) or real(self, n))
+    assert run("build", "--species", str(species), "--out", str(tmp_path / "first"), "--quiet")[0] == 0
+    assert asked == [len(SMALL) + 4]  # a table per species, thermo.dat, thermo.yaml, REPORT.md, provenance.json
+    assert {rel: b for rel, (b, _) in snapshot(tmp_path / "first").items()} == \
+        {rel: b for rel, (b, _) in snapshot(out).items()}
+    assert not os.listdir(tmp_path / "first" / ".statherm-cache" / "tmp")
+    assert run("build", "--species", str(species), "--out", str(tmp_path / "first"), "--quiet")[0] == 0
+    assert asked == [len(SMALL) + 4]  # a rebuild has a manifest: nothing reserved
+    edit(species / "HO2.yaml", "symmetry: ", "symmetry: -")
+    rc, _, err = run("build", "--species", str(species), "--out", str(tmp_path / "failed"), "--quiet")
+    assert rc == 1 and len(asked) == 2
+    assert not os.listdir(tmp_path / "failed" / ".statherm-cache" / "tmp")
+    assert not snapshot(tmp_path / "failed")
+
+
 def test_shard_writes_no_output(tmp_path):
     species, _ = database(tmp_path)
     dest = tmp_path / "fresh"
