@@ -825,9 +825,13 @@ def _check_flags(glob, flags: dict) -> None:
 def _changes(out: Path, files: dict[str, bytes], manifest: dict | None) -> tuple[dict[str, bytes], list[str]]:
     """(files whose bytes differ from what is on disk, stale files to delete)."""
     old = (manifest or {}).get("outputs", {})
+    listing = _listing(out, files)
     writes = {}
     for rel, data in files.items():
-        path = out / rel
+        if rel not in listing:  # not on disk: no need to look
+            writes[rel] = data
+            continue
+        path = os.path.join(out, rel)
         rec = old.get(rel)
         st = file_state(path)
         if st is None:
@@ -838,13 +842,29 @@ def _changes(out: Path, files: dict[str, bytes], manifest: dict | None) -> tuple
                 writes[rel] = data
             continue
         try:
-            if path.read_bytes() != data:
-                writes[rel] = data
+            with open(path, "rb") as fh:
+                if fh.read() != data:
+                    writes[rel] = data
         except OSError:
             writes[rel] = data
     deletes = {rel for rel in old if rel not in files and (out / rel).exists()}
-    deletes |= _leftovers(out, files)
+    deletes |= _leftovers(out, files, listing)
     return writes, sorted(deletes)
+
+
+def _listing(out: Path, files) -> dict[str, bool]:
+    """What is in the folders of ``out`` that ``files`` (output-relative paths) go to:
+    output-relative path → whether it is a regular file (one directory listing per folder
+    instead of a stat per file)."""
+    found: dict[str, bool] = {}
+    for parent in {rel.rpartition("/")[0] for rel in files}:
+        try:
+            with os.scandir(os.path.join(out, parent)) as it:
+                for e in it:
+                    found[f"{parent}/{e.name}" if parent else e.name] = e.is_file()
+        except OSError:
+            continue
+    return found
 
 
 def _note_changes_since(out: Path, files: dict[str, bytes]) -> None:
@@ -883,25 +903,22 @@ def _ignore_changes_section(out: Path, files: dict[str, bytes], writes: dict[str
         del writes["REPORT.md"]
 
 
-def _leftovers(out: Path, files: dict[str, bytes]) -> set[str]:
+def _leftovers(out: Path, files: dict[str, bytes], listing: dict[str, bool] | None = None) -> set[str]:
     """Files in the output's sub-folders (tables/, plots/) of a kind the build writes there
-    but no longer produces — e.g. the table of a removed species."""
+    but no longer produces — e.g. the table of a removed species.  ``listing`` is
+    :func:`_listing` of ``files``, if known."""
     kinds: dict[str, set[str]] = {}
     for rel in files:
         parent, _, leaf = rel.rpartition("/")
         if parent:
-            kinds.setdefault(parent, set()).add(Path(leaf).suffix)
+            kinds.setdefault(parent, set()).add(os.path.splitext(leaf)[1])
+    if listing is None:
+        listing = _listing(out, files)
     out_left = set()
-    for parent, suffixes in kinds.items():
-        folder = out / parent
-        try:
-            names = os.listdir(folder)
-        except OSError:
-            continue
-        for name in names:
-            rel = f"{parent}/{name}"
-            if rel not in files and Path(name).suffix in suffixes and (folder / name).is_file():
-                out_left.add(rel)
+    for rel, is_file in listing.items():
+        parent, _, name = rel.rpartition("/")
+        if is_file and parent in kinds and rel not in files and os.path.splitext(name)[1] in kinds[parent]:
+            out_left.add(rel)
     return out_left
 
 
