@@ -266,11 +266,10 @@ def _apply_flags(species, flags: dict):
     return dataclasses.replace(species, fit=dataclasses.replace(species.fit, **over))
 
 
-def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list[dict], list[dict], str | None]:
+def _compute(items, settings, flags: dict) -> tuple[list[dict], list[dict]]:
     """Compute the cache entries of ``items`` = [(key, display path, bytes, YAML read ahead or None)].
 
-    Returns (entries, error diagnostics as dicts, the name of the cache pack they
-    were stored in, or None): with ``cache_root``, the entries go to the cache as one pack.
+    Returns (entries, error diagnostics as dicts); :func:`_store` puts the entries in the cache.
     """
     from pipeline.fit import fit_options, fit_tables
     from pipeline.species import _Checker, check_ranges, parse_species
@@ -328,7 +327,6 @@ def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list
                     errors.append(Diagnostic(disp, "fit", str(exc)))
                     fits.append(None)
 
-    cache = Cache(Path(cache_root).parent) if cache_root else None
     entries = []
     fitted = [(item, fit) for item, fit in zip(loaded, fits) if fit is not None]
     rendered = batch_fragments([(sp, table, fit, s) for (_, _, sp, _, s, table), fit in fitted])
@@ -354,13 +352,19 @@ def _compute(items, settings, flags: dict, cache_root: str | None) -> tuple[list
         entry["files"] = {rel: sha256_bytes(b) for rel, b in extra.items()}
         entry["_extra"] = extra
         entries.append(entry)
-    pack = None
-    if cache is not None:
-        try:
-            pack = cache.store_entries([(e, e["_extra"]) for e in entries])
-        except OSError:
-            pass  # a cache that cannot be written only costs time
-    return entries, [d.as_dict() for d in errors], pack
+    return entries, [d.as_dict() for d in errors]
+
+
+def _store(entries: list[dict], cache_root: str | None) -> str | None:
+    """Put computed entries in the cache (``cache_root``: its folder) as one pack; returns
+    the pack's name, or None (no cache, nothing to store, or a cache that cannot be
+    written, which only costs time)."""
+    if cache_root is None:
+        return None
+    try:
+        return Cache(Path(cache_root).parent).store_entries([(e, e["_extra"]) for e in entries])
+    except OSError:
+        return None
 
 
 #: most species in one chunk.  The fit, the tables and the writers are batched across a
@@ -400,34 +404,49 @@ def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progres
 
     ``meanwhile()``, if given, runs in this process while the workers compute
     (work the parent needs later, e.g. compiling the document templates).
-    Returns (entries, error diagnostics as dicts, names of the cache packs
-    written), in the order of ``todo``'s chunks whatever order they finish in.
+    Returns (entries, error diagnostics as dicts, ``stored``), the entries and
+    errors in the order of ``todo``'s chunks whatever order they finish in;
+    ``stored()`` gives the names of the cache packs written.  Workers store their
+    packs after sending their results, while this process goes on with them:
+    ``stored()`` waits for the packs and for the workers to end (call it once,
+    also when the results are not used).
     """
     entries: list[dict] = []
     errors: list[dict] = []
-    packs: set[str] = set()
     if not todo:
-        return entries, errors, packs
+        return entries, errors, set
     jobs = max(1, min(jobs, len(todo) // 8 or 1))
     chunks = _chunks(todo, jobs)
+    packs: set[str | None] = set()
     if jobs == 1:
         if meanwhile:
             meanwhile()
-        results = enumerate(_compute(chunk, settings, flags, cache_root) for chunk in chunks)
+
+        def serial():
+            for i, chunk in enumerate(chunks):
+                result = _compute(chunk, settings, flags)
+                packs.add(_store(result[0], cache_root))
+                yield i, result
+
+        results, stored = serial(), lambda: packs - {None}
     else:
-        results = _in_workers(chunks, jobs, (settings, flags, cache_root), meanwhile)
-    done = 0
-    by_chunk = {}
-    for i, result in results:
-        by_chunk[i] = result
-        done += len(chunks[i])
-        progress.update(done)
+        workers = _Workers(chunks, jobs, (settings, flags, cache_root), meanwhile)
+        results, stored = workers.results(), workers.stored
+    try:
+        done = 0
+        by_chunk = {}
+        for i, result in results:
+            by_chunk[i] = result
+            done += len(chunks[i])
+            progress.update(done)
+    except BaseException:
+        stored()
+        raise
     for i in range(len(chunks)):
-        e, err, pack = by_chunk[i]
+        e, err = by_chunk[i]
         entries += e
         errors += err
-        packs.add(pack)
-    return entries, errors, packs - {None}
+    return entries, errors, stored
 
 
 def _child(target, args: tuple, *, fork_only: bool = False):
@@ -456,55 +475,98 @@ class WorkerError(RuntimeError):
     """The traceback of an exception raised in a build worker (the ``__cause__`` of its re-raise)."""
 
 
-def _in_workers(chunks: list[list], jobs: int, args: tuple, meanwhile=None):
-    """Compute ``chunks`` in ``jobs`` worker processes, each taking the next chunk not yet
-    taken (a shared counter) when it is free; yields (chunk index, :func:`_compute`
-    result) as each arrives.  A worker's exception is raised here; a worker that dies
-    (killed, out of memory) raises :class:`WorkerError` instead of leaving the build
-    waiting forever."""
-    import multiprocessing
-    import pickle
-    from multiprocessing.connection import wait
+class _Workers:
+    """``jobs`` worker processes computing ``chunks`` (each takes the next chunk not yet
+    taken — a shared counter — when it is free): :meth:`results` yields (chunk index,
+    :func:`_compute` result) as they arrive, :meth:`stored` the names of the cache packs
+    the workers wrote after sending them.  A worker's exception is raised in
+    :meth:`results`; a worker that dies before every result is in (killed, out of
+    memory) raises :class:`WorkerError` there instead of leaving the build waiting."""
 
-    taken = multiprocessing.get_context("fork" if hasattr(os, "fork") else "spawn").Value("l", 0)
-    started = []
-    try:
-        for _ in range(jobs):
-            got = _child(_work, (chunks, taken, *args))
-            if got is None:
-                raise WorkerError("cannot start a build worker process")
-            started.append(got)
-        if meanwhile:
-            meanwhile()
-        pending = {conn: child for child, conn in started}
-        while pending:
-            for conn in wait(list(pending)):
+    def __init__(self, chunks: list[list], jobs: int, args: tuple, meanwhile=None):
+        import multiprocessing
+
+        self.count = len(chunks)
+        self.packs: set[str | None] = set()
+        self.started = []
+        taken = multiprocessing.get_context("fork" if hasattr(os, "fork") else "spawn").Value("l", 0)
+        try:
+            for _ in range(jobs):
+                got = _child(_work, (chunks, taken, *args))
+                if got is None:
+                    raise WorkerError("cannot start a build worker process")
+                self.started.append(got)
+            if meanwhile:
+                meanwhile()
+        except BaseException:
+            self.stored()
+            raise
+        self.pending = {conn: child for child, conn in self.started}
+
+    def _messages(self):
+        """(chunk index, kind, payload) of each message, until every worker has ended."""
+        import pickle
+        from multiprocessing.connection import wait
+
+        while self.pending:
+            for conn in wait(list(self.pending)):
                 try:
-                    i, result = pickle.loads(conn.recv_bytes())
+                    message = pickle.loads(conn.recv_bytes())
                 except EOFError:  # the worker is done, or died
-                    child = pending.pop(conn)
+                    child = self.pending.pop(conn)
                     child.join()
-                    if child.exitcode:
-                        how = f"signal {-child.exitcode}" if child.exitcode < 0 else f"exit code {child.exitcode}"
-                        raise WorkerError(f"a build worker process ended early ({how})") from None
+                    yield None, "end", child.exitcode
                     continue
-                if i is None:
-                    exc, trace = result
-                    raise exc from WorkerError(trace)
-                yield i, result
-    finally:
-        for child, conn in started:
-            conn.close()
-            if child.is_alive():
-                child.terminate()
-            child.join()
+                yield message
+
+    def results(self):
+        got = 0
+        if got == self.count:
+            return
+        for i, kind, payload in self._messages():
+            if kind == "result":
+                yield i, payload
+                got += 1
+                if got == self.count:
+                    return
+            elif kind == "pack":
+                self.packs.add(payload)
+            elif kind == "error":
+                exc, trace = payload
+                raise exc from WorkerError(trace)
+            elif payload:  # a worker ended early
+                how = f"signal {-payload}" if payload < 0 else f"exit code {payload}"
+                raise WorkerError(f"a build worker process ended early ({how})")
+        raise WorkerError("the build workers ended before every result was in")
+
+    def stored(self) -> set[str]:
+        """Wait for the workers' last packs and for the workers to end; the pack names.  A
+        worker that dies now only leaves its pack out (the cache misses it)."""
+        try:
+            for _, kind, payload in self._messages():
+                if kind == "pack":
+                    self.packs.add(payload)
+        except (OSError, EOFError):
+            pass
+        finally:
+            for child, conn in self.started:
+                conn.close()
+                if child.is_alive():
+                    child.terminate()
+                child.join()
+            self.pending = {}
+        return self.packs - {None}
 
 
 def _work(chunks, taken, settings, flags, cache_root, conn) -> None:
-    """A build worker (child of :func:`_in_workers`): until every chunk is taken, take the
-    next (``taken`` counts them) and send (its index, its result); on an exception, send
-    (None, (exception, traceback text)) and stop."""
+    """A build worker (child of :class:`_Workers`): until every chunk is taken, take the
+    next (``taken`` counts them), send (index, "result", its result), store its entries
+    in the cache and send (index, "pack", the pack's name); on an exception, send
+    (None, "error", (exception, traceback text)) and stop."""
     import pickle
+
+    def send(message) -> None:
+        conn.send_bytes(pickle.dumps(message, protocol=pickle.HIGHEST_PROTOCOL))
 
     try:
         while True:
@@ -514,17 +576,18 @@ def _work(chunks, taken, settings, flags, cache_root, conn) -> None:
             if i >= len(chunks):
                 break
             fault("worker")
-            conn.send_bytes(pickle.dumps((i, _compute(chunks[i], settings, flags, cache_root)),
-                                         protocol=pickle.HIGHEST_PROTOCOL))
+            result = _compute(chunks[i], settings, flags)
+            send((i, "result", result))
+            send((i, "pack", _store(result[0], cache_root)))
     except BaseException as exc:  # noqa: BLE001 - every failure goes to the parent, which reports it
         import traceback
 
         trace = traceback.format_exc()
         try:
-            conn.send_bytes(pickle.dumps((None, (exc, trace)), protocol=pickle.HIGHEST_PROTOCOL))
+            send((None, "error", (exc, trace)))
         except Exception:  # noqa: BLE001 - an exception that does not pickle: its text does
             try:
-                conn.send_bytes(pickle.dumps((None, (WorkerError(f"{type(exc).__name__}: {exc}"), trace))))
+                send((None, "error", (WorkerError(f"{type(exc).__name__}: {exc}"), trace)))
             except OSError:
                 pass  # the parent is gone
     finally:
@@ -703,70 +766,73 @@ def _plan_read(inputs: Inputs, out: Path, cache: Cache | None, ahead, *, jobs, s
             if reserve and cache is not None:  # a table per species, the documents and provenance.json
                 cache.reserve(len(todo) + len(DOCUMENT_TEMPLATES) + 1)
 
-        entries, errors, plan.fresh_packs = _compute_all(
+        entries, errors, stored = _compute_all(
             todo, settings, inputs.flags, cache.root.as_posix() if cache else None,
             workers(jobs or settings.jobs), bar, meanwhile=meanwhile if shard is None else None)
     finally:
         bar.close()
-    plan.errors = [Diagnostic(**d) for d in errors]
-    for e in entries:
-        by_file[e["file"]] = e
-        if verbosity > 1:
-            print(f"computed {e['file']} ({e['name']})", file=sys.stderr)
-    no_plots = None
-    for e in by_file.values():
-        for d in e["warnings"]:
-            if d["key"] == "plots":  # said once for the database, not for every species
-                no_plots = Diagnostic(inputs.settings_file, "plots", d["message"], "warning")
-            else:
-                plan.warnings.append(Diagnostic(**d))
-    if no_plots:
-        plan.warnings.append(no_plots)
-    if shard is not None:
-        plan.files, plan.entries, plan.manifest = {}, [], {}
+    try:  # the workers store their cache packs meanwhile
+        plan.errors = [Diagnostic(**d) for d in errors]
+        for e in entries:
+            by_file[e["file"]] = e
+            if verbosity > 1:
+                print(f"computed {e['file']} ({e['name']})", file=sys.stderr)
+        no_plots = None
+        for e in by_file.values():
+            for d in e["warnings"]:
+                if d["key"] == "plots":  # said once for the database, not for every species
+                    no_plots = Diagnostic(inputs.settings_file, "plots", d["message"], "warning")
+                else:
+                    plan.warnings.append(Diagnostic(**d))
+        if no_plots:
+            plan.warnings.append(no_plots)
+        if shard is not None:
+            plan.files, plan.entries, plan.manifest = {}, [], {}
+            return plan
+
+        from types import SimpleNamespace
+
+        from pipeline.species import duplicate_names
+
+        dups = duplicate_names([SimpleNamespace(name=e["name"], path=f) for f, e in by_file.items()])
+        plan.errors.extend(dups)
+        bad = {d.file for d in plan.errors}
+        good = sorted((e for f, e in by_file.items() if f not in bad), key=lambda e: e["name"])
+        plan.entries = good
+        if plan.errors and not keep_going:
+            plan.files = {}
+            plan.manifest = {}
+            return plan
+
+        from pipeline.writers import assemble
+
+        files = dict(assemble([e["fragments"] for e in good], glob))
+        if since_last and glob.report_changes:
+            _note_changes_since(out, files)
+        for e in good:
+            extra = e.get("_extra")
+            for rel, sha in e.get("files", {}).items():
+                files[rel] = extra[rel] if extra else cache.blob(sha)
+        shas = {rel: sha256_bytes(data) for rel, data in files.items()}
+        files[PROVENANCE] = _provenance_record(inputs, files, shas, left_out=bad)
+        shas[PROVENANCE] = sha256_bytes(files[PROVENANCE])
+        plan.files = files
+        plan.manifest = {
+            "format": FORMAT,
+            "version": __version__,
+            "build_key": inputs.build_key,
+            "complete": not plan.errors,
+            "code": inputs.code,
+            "settings_file": inputs.settings_sha,
+            "settings": skey,
+            "flags": inputs.flags,
+            "inputs": {disp: sha for _, disp, _, sha in inputs.files},
+            "entries": {f: keys[f] for f in by_file if f not in bad},
+            "outputs": {rel: [0, 0, shas[rel]] for rel in files},
+        }
         return plan
-
-    from types import SimpleNamespace
-
-    from pipeline.species import duplicate_names
-
-    dups = duplicate_names([SimpleNamespace(name=e["name"], path=f) for f, e in by_file.items()])
-    plan.errors.extend(dups)
-    bad = {d.file for d in plan.errors}
-    good = sorted((e for f, e in by_file.items() if f not in bad), key=lambda e: e["name"])
-    plan.entries = good
-    if plan.errors and not keep_going:
-        plan.files = {}
-        plan.manifest = {}
-        return plan
-
-    from pipeline.writers import assemble
-
-    files = dict(assemble([e["fragments"] for e in good], glob))
-    if since_last and glob.report_changes:
-        _note_changes_since(out, files)
-    for e in good:
-        extra = e.get("_extra")
-        for rel, sha in e.get("files", {}).items():
-            files[rel] = extra[rel] if extra else cache.blob(sha)
-    shas = {rel: sha256_bytes(data) for rel, data in files.items()}
-    files[PROVENANCE] = _provenance_record(inputs, files, shas, left_out=bad)
-    shas[PROVENANCE] = sha256_bytes(files[PROVENANCE])
-    plan.files = files
-    plan.manifest = {
-        "format": FORMAT,
-        "version": __version__,
-        "build_key": inputs.build_key,
-        "complete": not plan.errors,
-        "code": inputs.code,
-        "settings_file": inputs.settings_sha,
-        "settings": skey,
-        "flags": inputs.flags,
-        "inputs": {disp: sha for _, disp, _, sha in inputs.files},
-        "entries": {f: keys[f] for f in by_file if f not in bad},
-        "outputs": {rel: [0, 0, shas[rel]] for rel in files},
-    }
-    return plan
+    finally:
+        plan.fresh_packs = stored()
 
 
 def _set_up_compute() -> None:

@@ -148,6 +148,21 @@ def test_worker_errors_come_in_file_order_whatever_finishes_first(tmp_path, monk
     assert len(said["1"]) == 4 and said["2"] == said["1"]
 
 
+def test_workers_store_their_packs_for_the_next_build(tmp_path):
+    """Workers store their cache packs after sending their results; the build waits for them,
+    so a rebuild with one species edited computes that one only."""
+    from pipeline.bench import synthesise
+
+    species, out = tmp_path / "species", tmp_path / "out"
+    paths = synthesise(40, species)
+    assert run("build", "--species", str(species), "--out", str(out), "--jobs", "2", "--quiet")[0] == 0
+    packs = os.listdir(out / ".statherm-cache" / "entries")
+    assert len(packs) == 2  # one per chunk
+    paths[7].write_text(paths[7].read_text(encoding="utf-8") + "notes: edited\n", encoding="utf-8")
+    rc, _, err = run("build", "--species", str(species), "--out", str(out), "--jobs", "2")
+    assert rc == 0 and "(1 computed, 39 cached)" in err, err
+
+
 def test_a_killed_worker_fails_the_build_and_leaves_the_output(tmp_path):
     """A worker process killed mid-build (STATHERM_FAULT=worker: SIGKILL before its first chunk) is
     an error the parent reports; it neither waits forever nor writes anything."""
@@ -176,8 +191,10 @@ def test_a_worker_exception_is_raised_in_the_parent_with_its_traceback():
     import pipeline.build as b
 
     # settings=None makes _compute fail in the worker: the same exception type comes back
+    workers = b._Workers([[("k", "x.yaml", b"name: X\n", None)]] * 2, 2, (None, {}, None))
     with pytest.raises(AttributeError) as caught:
-        list(b._in_workers([[("k", "x.yaml", b"name: X\n", None)]] * 2, 2, (None, {}, None)))
+        list(workers.results())
+    assert workers.stored() == set()  # and the workers are gone
     assert isinstance(caught.value.__cause__, b.WorkerError)
     assert "in _compute" in str(caught.value.__cause__)  # the worker's traceback text
 
@@ -193,8 +210,8 @@ def test_a_worker_exception_is_raised_in_the_parent_with_its_traceback():
         b._work([[]], multiprocessing.Value("l", 0), None, {}, None, send)
     finally:
         b._compute = real
-    i, (exc, trace) = pickle.loads(receive.recv_bytes())
-    assert i is None and isinstance(exc, b.WorkerError) and str(exc) == "Local: no luck"
+    i, kind, (exc, trace) = pickle.loads(receive.recv_bytes())
+    assert (i, kind) == (None, "error") and isinstance(exc, b.WorkerError) and str(exc) == "Local: no luck"
     assert "no luck" in trace
 
 
