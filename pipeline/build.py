@@ -414,7 +414,7 @@ def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progres
     entries: list[dict] = []
     errors: list[dict] = []
     if not todo:
-        return entries, errors, set
+        return entries, errors, lambda: set()
     jobs = max(1, min(jobs, len(todo) // 8 or 1))
     chunks = _chunks(todo, jobs)
     packs: set[str | None] = set()
@@ -440,7 +440,8 @@ def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progres
             done += len(chunks[i])
             progress.update(done)
     except BaseException:
-        stored()
+        if jobs > 1:
+            workers.stop()
         raise
     for i in range(len(chunks)):
         e, err = by_chunk[i]
@@ -449,15 +450,12 @@ def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progres
     return entries, errors, stored
 
 
-def _child(target, args: tuple, *, fork_only: bool = False):
+def _child(target, args: tuple):
     """Start ``target(*args, conn)`` in a child process — forked where the platform can, so
     that it shares what this one has imported and read — with ``conn`` the sending end of
-    a pipe.  Returns (process, receiving end), or None when ``fork_only`` and there is no
-    fork, or the process cannot be started."""
+    a pipe.  Returns (process, receiving end), or None when the process cannot be started."""
     import multiprocessing
 
-    if fork_only and not hasattr(os, "fork"):
-        return None
     ctx = multiprocessing.get_context("fork" if hasattr(os, "fork") else "spawn")
     receive, send = ctx.Pipe(duplex=False)
     child = ctx.Process(target=target, args=(*args, send), daemon=True)
@@ -488,7 +486,8 @@ class _Workers:
 
         self.count = len(chunks)
         self.packs: set[str | None] = set()
-        self.started = []
+        self.started: list = []
+        self.pending: dict = {}
         taken = multiprocessing.get_context("fork" if hasattr(os, "fork") else "spawn").Value("l", 0)
         try:
             for _ in range(jobs):
@@ -496,12 +495,12 @@ class _Workers:
                 if got is None:
                     raise WorkerError("cannot start a build worker process")
                 self.started.append(got)
+                self.pending[got[1]] = got[0]
             if meanwhile:
                 meanwhile()
         except BaseException:
-            self.stored()
+            self.stop()
             raise
-        self.pending = {conn: child for child, conn in self.started}
 
     def _messages(self):
         """(chunk index, kind, payload) of each message, until every worker has ended."""
@@ -512,7 +511,7 @@ class _Workers:
             for conn in wait(list(self.pending)):
                 try:
                     message = pickle.loads(conn.recv_bytes())
-                except EOFError:  # the worker is done, or died
+                except (EOFError, OSError):  # the worker is done, or died
                     child = self.pending.pop(conn)
                     child.join()
                     yield None, "end", child.exitcode
@@ -546,16 +545,18 @@ class _Workers:
             for _, kind, payload in self._messages():
                 if kind == "pack":
                     self.packs.add(payload)
-        except (OSError, EOFError):
-            pass
         finally:
-            for child, conn in self.started:
-                conn.close()
-                if child.is_alive():
-                    child.terminate()
-                child.join()
-            self.pending = {}
+            self.stop()
         return self.packs - {None}
+
+    def stop(self) -> None:
+        """End the workers now (after an error: their work is not wanted) and close the pipes."""
+        for child, conn in self.started:
+            conn.close()
+            if child.is_alive():
+                child.terminate()
+            child.join()
+        self.pending = {}
 
 
 def _work(chunks, taken, settings, flags, cache_root, conn) -> None:
@@ -641,7 +642,7 @@ def _read_ahead(inputs: Inputs, cache: Cache | None, shard=None):
     import pipeline.safeyaml  # noqa: F401 - this process needs it too; loaded once, before the fork
 
     taken = multiprocessing.get_context("fork").Value("l", 0)
-    started = _child(_read_files, (files, taken), fork_only=True)
+    started = _child(_read_files, (files, taken))
     if started is None:
         return None
     child, receive = started
