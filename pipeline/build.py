@@ -450,13 +450,19 @@ def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progres
     return entries, errors, stored
 
 
-def _child(target, args: tuple):
-    """Start ``target(*args, conn)`` in a child process — forked where the platform can, so
-    that it shares what this one has imported and read — with ``conn`` the sending end of
-    a pipe.  Returns (process, receiving end), or None when the process cannot be started."""
+def _context():
+    """The multiprocessing context of the build's children: fork where the platform has it
+    (a child shares what the parent has imported and read), else spawn."""
     import multiprocessing
 
-    ctx = multiprocessing.get_context("fork" if hasattr(os, "fork") else "spawn")
+    return multiprocessing.get_context("fork" if hasattr(os, "fork") else "spawn")
+
+
+def _child(target, args: tuple):
+    """Start ``target(*args, conn)`` in a child process (:func:`_context`) with ``conn`` the
+    sending end of a pipe.  Returns (process, receiving end), or None when the process
+    cannot be started."""
+    ctx = _context()
     receive, send = ctx.Pipe(duplex=False)
     child = ctx.Process(target=target, args=(*args, send), daemon=True)
     try:
@@ -482,13 +488,11 @@ class _Workers:
     memory) raises :class:`WorkerError` there instead of leaving the build waiting."""
 
     def __init__(self, chunks: list[list], jobs: int, args: tuple, meanwhile=None):
-        import multiprocessing
-
         self.count = len(chunks)
         self.packs: set[str | None] = set()
         self.started: list = []
         self.pending: dict = {}
-        taken = multiprocessing.get_context("fork" if hasattr(os, "fork") else "spawn").Value("l", 0)
+        taken = _context().Value("l", 0)
         try:
             for _ in range(jobs):
                 got = _child(_work, (chunks, taken, *args))
@@ -520,8 +524,6 @@ class _Workers:
 
     def results(self):
         got = 0
-        if got == self.count:
-            return
         for i, kind, payload in self._messages():
             if kind == "result":
                 yield i, payload
@@ -636,12 +638,11 @@ def _read_ahead(inputs: Inputs, cache: Cache | None, shard=None):
     files = [(sha, data) for name, _, data, sha in inputs.files if sha not in known and _in_shard(name, shard)]
     if len(files) < READ_AHEAD_MIN or workers("auto") < 2 or not hasattr(os, "fork"):
         return None
-    import multiprocessing
     import pickle
 
     import pipeline.safeyaml  # noqa: F401 - this process needs it too; loaded once, before the fork
 
-    taken = multiprocessing.get_context("fork").Value("l", 0)
+    taken = _context().Value("l", 0)
     started = _child(_read_files, (files, taken))
     if started is None:
         return None
