@@ -47,8 +47,8 @@ from pathlib import Path
 
 from pipeline import __version__
 from pipeline.cache import (
-    FORMAT, Cache, Lock, Progress, Unwritable, code_fingerprint, display_path, fault, file_state,
-    sha256_bytes, sha256_json, species_files,
+    FORMAT, Cache, Lock, Progress, Unwritable, canonical_json, code_fingerprint, display_path, fault,
+    file_state, sha256_bytes, sha256_json, species_files,
 )
 from pipeline.diagnostics import Diagnostic, InputError
 from pipeline.plots import available as plots_available  # stdlib only: plots appear once matplotlib is installed
@@ -213,9 +213,18 @@ class Inputs:
              [(name, sha) for name, _, _, sha in self.files], plots_available()]
         )
 
-    def entry_key(self, name: str, sha: str, settings_key: dict) -> str:
-        """Cache key of one species file's result."""
-        return sha256_json([FORMAT, __version__, self.code, name, sha, settings_key, self.flags])
+    def entry_keys(self, settings_key: dict):
+        """The cache key of one species file's result, ``key(name, sha256)``: sha256_json of
+        [FORMAT, version, code, name, sha256, settings_key, flags].  The canonical JSON of a
+        list is its items' joined by commas, so the parts common to every file are encoded
+        once (about 10 µs a file saved)."""
+        head = "[" + ",".join(canonical_json(v) for v in (FORMAT, __version__, self.code)) + ","
+        tail = "," + canonical_json(settings_key) + "," + canonical_json(self.flags) + "]"
+
+        def key(name: str, sha: str) -> str:
+            return sha256_bytes(f"{head}{canonical_json(name)},{canonical_json(sha)}{tail}".encode())
+
+        return key
 
 
 def _manifest_current(manifest: dict | None, inputs: Inputs, out: Path, cache: Cache | None) -> bool:
@@ -742,8 +751,9 @@ def _plan_read(inputs: Inputs, out: Path, cache: Cache | None, ahead, *, jobs, s
     by_file: dict[str, dict] = {}
     todo = []
     keys = {}
+    entry_key = inputs.entry_keys(skey)
     for name, disp, data, sha in inputs.files:
-        key = inputs.entry_key(name, sha, skey)
+        key = entry_key(name, sha)
         keys[disp] = key
         entry = cache.load_entry(key) if cache else None
         if entry is not None:

@@ -51,9 +51,14 @@ def sha256_bytes(data: bytes) -> str:
     return hashlib.sha256(data).hexdigest()
 
 
+def canonical_json(value) -> str:
+    """Canonical JSON text of a value: sorted keys, no spaces (what :func:`sha256_json` hashes)."""
+    return json.dumps(value, sort_keys=True, separators=(",", ":"))
+
+
 def sha256_json(value) -> str:
     """Hex sha256 of a JSON-serialisable value (canonical: sorted keys, no spaces)."""
-    return sha256_bytes(json.dumps(value, sort_keys=True, separators=(",", ":")).encode())
+    return sha256_bytes(canonical_json(value).encode())
 
 
 def species_files(directory: str | Path) -> list[Path]:
@@ -62,10 +67,10 @@ def species_files(directory: str | Path) -> list[Path]:
     The folder's settings file ``statherm.yaml`` is not a species file.
     """
     d = Path(directory)
-    return sorted(
-        (p for p in d.iterdir() if p.suffix in (".yaml", ".yml") and p.is_file() and p.name != "statherm.yaml"),
-        key=lambda p: p.name,
-    )
+    with os.scandir(d) as found:  # one listing; file types from it, without a stat per file
+        names = sorted(e.name for e in found if os.path.splitext(e.name)[1] in (".yaml", ".yml")
+                       and e.name != "statherm.yaml" and e.is_file())
+    return [d / name for name in names]
 
 
 def display_path(p: Path) -> str:

@@ -836,3 +836,17 @@ def test_memory_freed_in_a_build_is_kept_for_reuse(tmp_path):
         pytest.skip("not glibc")
     # 20 rounds of ten ~1 MB arrays: about 40,000 faults by default (measured), none when kept
     assert got["1"][1] < 1000 < got["0"][1]
+
+
+def test_entry_keys_are_the_sha256_of_the_whole_canonical_list(tmp_path):
+    import pipeline.build as b
+    from pipeline.cache import sha256_json
+
+    species, _ = database(tmp_path)
+    inputs = b.Inputs(species, {"tmin": 250.0, "tmid": "auto"})
+    skey = {"pressure": "bar", "plots": False, "grid": [10.0, None, True], "note": "Ünïcode ✓"}
+    key = inputs.entry_keys(skey)
+    for name, sha in (("CH4.yaml", "0" * 64), ("ÄÖ \"q\".yaml", "f" * 64)):
+        whole = [b.FORMAT, b.__version__, inputs.code, name, sha, skey, inputs.flags]
+        assert key(name, sha) == sha256_json(whole)
+    assert key("a.yaml", "1" * 64) != key("b.yaml", "1" * 64) != inputs.entry_keys({**skey, "plots": True})("b.yaml", "1" * 64)
