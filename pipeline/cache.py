@@ -375,26 +375,29 @@ class Cache:
     def journal_path(self) -> Path:
         return self.root / "journal.json"
 
+    def _temporary(self, i: int) -> str:
+        """Path of this process's ``i``-th temporary (the names :meth:`commit` writes to)."""
+        return os.path.join(self.root, "tmp", f"{os.getpid()}-{i}")
+
     def reserve(self, count: int) -> None:
         """Make ``count`` empty temporaries for the next :meth:`commit` (as many as it will
         probably write): a build does this while its workers compute, so that creating the
         files (allocating their inodes, the costly part on a busy ext4) is not left to the
         end.  Unused ones are removed by :meth:`commit` or :meth:`drop_reserved`."""
-        tmpdir, pid = os.path.join(self.root, "tmp"), os.getpid()
         for i in range(self._reserved, count):
-            with open(os.path.join(tmpdir, f"{pid}-{i}"), "wb"):
+            with open(self._temporary(i), "wb"):
                 pass
             self._reserved = i + 1
 
     def drop_reserved(self, keep: int = 0) -> None:
-        """Remove the reserved temporaries past the first ``keep``."""
-        tmpdir, pid = os.path.join(self.root, "tmp"), os.getpid()
+        """Remove the reserved temporaries past the first ``keep`` (which the caller has
+        taken over) and forget them all."""
         for i in range(keep, self._reserved):
             try:
-                os.unlink(os.path.join(tmpdir, f"{pid}-{i}"))
+                os.unlink(self._temporary(i))
             except FileNotFoundError:
                 pass
-        self._reserved = min(self._reserved, keep)
+        self._reserved = 0
 
     def commit(self, writes: dict[str, bytes], deletes: list[str], manifest: dict) -> None:
         """Replace/delete output files as one recoverable step (see module docstring).
@@ -404,18 +407,15 @@ class Cache:
         the manifest to store once the files are in place.  Output stats for
         the written files are filled into ``manifest["outputs"]`` here.
         """
-        tmpdir = os.path.join(self.root, "tmp")
         moves = []
-        pid = os.getpid()
         for i, (rel, data) in enumerate(sorted(writes.items())):
-            name = f"{pid}-{i}"  # a reserved temporary is opened, truncated and written
-            with open(os.path.join(tmpdir, name), "wb") as fh:
+            path = self._temporary(i)  # a reserved temporary is opened, truncated and written
+            with open(path, "wb") as fh:
                 fh.write(data)
-            moves.append([name, rel])
+            moves.append([os.path.basename(path), rel])
             if i == len(writes) // 2:
                 fault("writing-temporaries")
-        self.drop_reserved(keep=len(writes))
-        self._reserved = 0  # the kept ones are moved into place below
+        self.drop_reserved(keep=len(writes))  # the written ones are moved into place below
         journal = {"format": FORMAT, "moves": moves, "deletes": sorted(deletes), "manifest": manifest}
         fault("before-journal")
         write_atomic(self.journal_path, dump_json(journal))
