@@ -15,6 +15,7 @@ No traceback is shown for bad input; ``--debug`` shows one for bugs.
 from __future__ import annotations
 
 import argparse
+import gc
 import json
 import os
 import sys
@@ -172,7 +173,16 @@ def run() -> None:
     process joined by the time :func:`main` returns, so only the standard
     streams are left to flush before ``os._exit``.  In-process callers (the
     tests) use :func:`main`, which returns.
+
+    The cyclic garbage collector is off for the command's lifetime: what a
+    command makes (imported modules, YAML documents, fragments, arrays) is
+    freed by reference counting, and the collector's passes only walk it.
+    Measured on a 1,000-species cold build: 49 ms in 134 collections in the
+    parent process (18 ms of it while numpy, scipy and the pipeline modules are
+    imported) and 5–7 ms in each worker; the peak memory of a 10,000-species
+    build is the same either way (337 MB).
     """
+    gc.disable()  # inherited by the build's forked children
     code = main()
     try:
         sys.stdout.flush()

@@ -781,6 +781,19 @@ def test_jobs_setting_auto_number_or_error(tmp_path):
     assert proc.returncode == 2 and "--jobs" in proc.stderr and "Traceback" not in proc.stderr
 
 
+def test_the_command_runs_without_the_cyclic_collector_and_leaves_with_mains_code():
+    """cli.run (the console script and ``python -m pipeline``) turns the cyclic garbage
+    collector off before the command runs, flushes what it printed and exits with the code
+    main returned."""
+    import subprocess
+
+    from buildkit import ROOT
+
+    code = "import gc, pipeline.cli as c; c.main = lambda: print(gc.isenabled(), end='') or 4; c.run()"
+    proc = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True)
+    assert (proc.returncode, proc.stdout) == (4, "False"), proc.stderr
+
+
 def test_bench_times_each_kind_of_build_and_leaves_no_build_folders(tmp_path):
     from pipeline.bench import bench_size, table
 
