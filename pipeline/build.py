@@ -656,8 +656,6 @@ def _read_ahead(inputs: Inputs, cache: Cache | None, shard=None):
         return None
     import pickle
 
-    import pipeline.safeyaml  # noqa: F401 - this process needs it too; loaded once, before the fork
-
     taken = _context().Value("l", 0)
     started = _child(_read_files, (files, taken))
     if started is None:
@@ -690,13 +688,12 @@ def _read_some(files, taken) -> dict:
     """{sha256: document} of the blocks of ``files`` this process takes (``taken`` counts
     the files taken by either process) until none is left, leaving out files that do not
     read cleanly."""
-    from pipeline.safeyaml import load_yaml
-
     docs = {}
     while True:
         start = _take(taken, READ_BLOCK)
         if start >= len(files):
             return docs
+        from pipeline.safeyaml import load_yaml  # imported by whichever process reads
         for sha, data in files[start:start + READ_BLOCK]:
             try:
                 doc = load_yaml(data.decode("utf-8"))
@@ -1308,7 +1305,7 @@ def _provenance(data: bytes | None) -> dict[str, dict] | None:
     """species file name → the provenance thermo.yaml records for it (None if unreadable)."""
     if data is None:
         return None
-    from pipeline.species import load_yaml
+    from pipeline.safeyaml import load_yaml
 
     try:
         doc = load_yaml(data.decode("utf-8"))

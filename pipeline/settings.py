@@ -94,12 +94,13 @@ def workers(jobs: int | str) -> int:
 
 def load_settings(database: str | Path, base: Settings | None = None) -> Settings:
     """Read ``statherm.yaml`` from the database folder (if present) over the defaults."""
-    from pipeline.species import _Checker, check_ranges, load_yaml
+    from pipeline.species import _Checker, check_ranges
 
     base = base or Settings()
     path = Path(database) / SETTINGS_FILE
     if not path.exists():
         return base
+    from pipeline.safeyaml import load_yaml
     file = path.as_posix()
     try:
         doc = load_yaml(path.read_text(encoding="utf-8"))

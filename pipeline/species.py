@@ -23,13 +23,10 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-import yaml
-
 from pipeline import units
 from pipeline.cache import display_path as _display, species_files  # noqa: F401 (stdlib-only helpers)
 from pipeline.diagnostics import Diagnostic, InputError
 from pipeline.elements import ATOMIC_WEIGHT, formula_mass
-from pipeline.safeyaml import SpeciesLoader, load_yaml  # noqa: F401 (re-exported)
 
 from scipy import constants as C
 
@@ -522,6 +519,10 @@ def parse_species(data: bytes, file: str, doc: Any = None) -> tuple[Species, lis
         text = data.decode("utf-8")
     except UnicodeDecodeError as exc:
         raise InputError([Diagnostic(file, "", f"is not UTF-8 text ({exc.reason} at byte {exc.start})")]) from None
+    import yaml  # here only: a build reads its documents in a child (pipeline.build), so it needs no yaml
+
+    from pipeline.safeyaml import load_yaml
+
     try:
         doc = load_yaml(text)
     except yaml.YAMLError as exc:

@@ -794,6 +794,26 @@ def test_the_command_runs_without_the_cyclic_collector_and_leaves_with_mains_cod
     assert (proc.returncode, proc.stdout) == (4, "False"), proc.stderr
 
 
+def test_the_compute_modules_and_default_settings_load_without_yaml(tmp_path):
+    """A cold build reads its YAML in the read-ahead child: the modules the build's parent
+    and workers load (and the settings of a folder without statherm.yaml) import no yaml;
+    parsing a file without a document read ahead still works."""
+    import subprocess
+
+    from buildkit import ROOT
+
+    code = ("import sys, pipeline.build, pipeline.fit, pipeline.species, pipeline.thermo, pipeline.writers\n"
+            "from pipeline.settings import load_settings\n"
+            "load_settings(sys.argv[1])\n"
+            "before = 'yaml' in sys.modules\n"
+            "sp, _ = pipeline.species.parse_species(open(sys.argv[2], 'rb').read(), 'OH.yaml')\n"
+            "print(before, 'yaml' in sys.modules, sp.name)")
+    species = ROOT / "species"
+    proc = subprocess.run([sys.executable, "-c", code, str(tmp_path), str(species / "OH.yaml")], cwd=ROOT,
+                          capture_output=True, text=True)
+    assert proc.stdout.split() == ["False", "True", "OH"], proc.stderr
+
+
 def test_bench_times_each_kind_of_build_and_leaves_no_build_folders(tmp_path):
     from pipeline.bench import bench_size, table
 

@@ -8,7 +8,8 @@ from hypothesis import strategies as st
 
 from buildkit import SPECIES_DIR
 from pipeline.diagnostics import InputError
-from pipeline.species import _TOP_KEYS, Species, load_yaml, parse_species
+from pipeline.safeyaml import load_yaml
+from pipeline.species import _TOP_KEYS, Species, parse_species
 
 VALID = [p.read_text(encoding="utf-8") for p in sorted(SPECIES_DIR.glob("*.yaml"))]
 KEYS = sorted(_TOP_KEYS) + ["constants", "frequencies", "unit", "levels", "enthalpy", "tmin", "tmid", "tmax",
@@ -100,7 +101,7 @@ def test_mutated_species_files(text, data):
 def _reference_load(text: str):
     """The loader's documents as PyYAML's own constructors build them (SpeciesLoader's
     resolvers and constructors, without load_yaml's direct node conversion)."""
-    from pipeline.species import SpeciesLoader
+    from pipeline.safeyaml import SpeciesLoader
 
     return yaml.load(text, Loader=SpeciesLoader)  # noqa: S506 - safe loader subclass
 

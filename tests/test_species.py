@@ -9,7 +9,8 @@ import yaml
 from scipy import constants as C
 
 from pipeline.diagnostics import InputError
-from pipeline.species import load_database, load_yaml, parse_species
+from pipeline.safeyaml import load_yaml
+from pipeline.species import load_database, parse_species
 
 # A valid water document; the numbers are the starter-database values
 # (rotational constants and fundamentals: NIST CCCBDB experimental data).

@@ -186,7 +186,8 @@ def test_band_written_into_thermo_yaml_and_tables(tmp_path, database):
     import pandas as pd
 
     from buildkit import run
-    from pipeline.species import load_species, load_yaml
+    from pipeline.safeyaml import load_yaml
+    from pipeline.species import load_species
 
     species = tmp_path / "species"
     species.mkdir()

@@ -330,7 +330,7 @@ def test_outputs_hold_no_absolute_path_and_no_date():
 def load_thermo_yaml(data: bytes):
     import yaml
 
-    from pipeline.species import load_yaml
+    from pipeline.safeyaml import load_yaml
 
     doc = yaml.safe_load(data.decode())  # a YAML 1.1 loader
     assert load_yaml(data.decode()) == doc  # and this project's YAML 1.2 loader: the same values
