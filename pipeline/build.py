@@ -47,8 +47,8 @@ from pathlib import Path
 
 from pipeline import __version__
 from pipeline.cache import (
-    FORMAT, Cache, Lock, Progress, Unwritable, canonical_json, code_fingerprint, display_path, fault,
-    file_state, sha256_bytes, sha256_json, species_files,
+    FORMAT, Cache, Lock, Progress, Staged, Unwritable, canonical_json, code_fingerprint, display_path,
+    fault, file_state, sha256_bytes, sha256_json, species_files,
 )
 from pipeline.diagnostics import Diagnostic, InputError
 from pipeline.plots import available as plots_available  # stdlib only: plots appear once matplotlib is installed
@@ -376,6 +376,35 @@ def _store(entries: list[dict], cache_root: str | None) -> str | None:
         return None
 
 
+def _staged(result: tuple[list[dict], list[dict]], stage: str | None) -> tuple[list[dict], list[dict]]:
+    """``result`` of :func:`_compute` as it goes to the parent.  With ``stage`` (the
+    folder of :meth:`Cache.staging`), each species' table is written there now, in
+    the process that computed it, and its entry carries a :class:`Staged` reference in
+    ``"staged"`` (output path → Staged) instead of the text: a first build's parent then
+    neither receives nor writes the tables, it only moves them into place at the commit.
+    The entries themselves are not changed (the cache packs keep the text)."""
+    entries, errors = result
+    if stage is None:
+        return result
+    from pipeline.writers import table_path
+
+    top = os.path.basename(stage)
+    light, made = [], set()
+    for e in entries:
+        frags = e["fragments"]
+        rel = table_path(e["name"])
+        data = frags["table_csv"].encode("utf-8")
+        folder = os.path.join(stage, rel.rpartition("/")[0])
+        if folder not in made:
+            os.makedirs(folder, exist_ok=True)
+            made.add(folder)
+        with open(os.path.join(stage, rel), "wb") as fh:
+            fh.write(data)
+        light.append({**e, "fragments": {**frags, "table_csv": None},
+                      "staged": {rel: Staged(f"{top}/{rel}", sha256_bytes(data), len(data))}})
+    return light, errors
+
+
 #: most species in one chunk.  The fit, the tables and the writers are batched across a
 #: chunk's species, and each batch has a fixed cost (about 10 ms, mostly the fit's numpy
 #: calls per Lawson pass, whatever the number of species): few large chunks are cheaper,
@@ -408,7 +437,8 @@ def _chunks(todo: list, jobs: int) -> list[list]:
     return [todo[a:b] for a, b in zip(ends, ends[1:]) if b > a]
 
 
-def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progress, meanwhile=None):
+def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progress, meanwhile=None,
+                 stage: str | None = None):
     """Run :func:`_compute` over ``todo`` in ``jobs`` processes, in chunks (for the progress bar).
 
     ``meanwhile()``, if given, runs in this process while the workers compute
@@ -418,7 +448,8 @@ def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progres
     ``stored()`` gives the names of the cache packs written.  Workers store their
     packs after sending their results, while this process goes on with them:
     ``stored()`` waits for the packs and for the workers to end (call it once,
-    also when the results are not used).
+    also when the results are not used).  With ``stage``, the tables are written
+    there by whoever computes them (:func:`_staged`).
     """
     entries: list[dict] = []
     errors: list[dict] = []
@@ -435,11 +466,11 @@ def _compute_all(todo, settings, flags, cache_root, jobs: int, progress: Progres
             for i, chunk in enumerate(chunks):
                 result = _compute(chunk, settings, flags)
                 packs.add(_store(result[0], cache_root))
-                yield i, result
+                yield i, _staged(result, stage)
 
         results, stored, stop = serial(), lambda: packs - {None}, None
     else:
-        workers = _Workers(chunks, jobs, (settings, flags, cache_root), meanwhile)
+        workers = _Workers(chunks, jobs, (settings, flags, cache_root, stage), meanwhile)
         results, stored, stop = workers.results(), workers.stored, workers.stop
     try:
         done = 0
@@ -579,11 +610,11 @@ class _Workers:
         self.pending = {}
 
 
-def _work(chunks, taken, settings, flags, cache_root, conn) -> None:
+def _work(chunks, taken, settings, flags, cache_root, stage, conn) -> None:
     """A build worker (child of :class:`_Workers`): until every chunk is taken, take the
-    next (``taken`` counts them), send (index, "result", its result), store its entries
-    in the cache and send (index, "pack", the pack's name); on an exception, send
-    (None, "error", (exception, traceback text)) and stop."""
+    next (``taken`` counts them), send (index, "result", its result — :func:`_staged`
+    into ``stage``), store its entries in the cache and send (index, "pack", the pack's
+    name); on an exception, send (None, "error", (exception, traceback text)) and stop."""
     import pickle
 
     def send(message) -> None:
@@ -596,7 +627,7 @@ def _work(chunks, taken, settings, flags, cache_root, conn) -> None:
                 break
             fault("worker")
             result = _compute(chunks[i], settings, flags)
-            send((i, "result", result))
+            send((i, "result", _staged(result, stage)))
             send((i, "pack", _store(result[0], cache_root)))
     except BaseException as exc:  # noqa: BLE001 - every failure goes to the parent, which reports it
         import traceback
@@ -723,8 +754,9 @@ def _plan(inputs: Inputs, out: Path, cache: Cache | None, *, jobs: int | None, s
           since_last: bool = False, started: float | None = None, reserve: bool = False) -> Plan:
     """What the output folder should contain; ``started`` (time.monotonic()) is when the
     build began, from which the progress bar's one-second delay counts.  With
-    ``reserve``, the temporaries of the new files are made while the workers compute
-    (:meth:`Cache.reserve`: for a first build into an output folder, which writes every file)."""
+    ``reserve`` (a first build into an output folder, which writes every file), the
+    workers write the tables themselves (:meth:`Cache.staging`, :func:`_staged`) and the
+    temporaries of the other files are made while they compute (:meth:`Cache.reserve`)."""
     ahead = _read_ahead(inputs, cache, shard)
     try:
         return _plan_read(inputs, out, cache, ahead, jobs=jobs, shard=shard, keep_going=keep_going,
@@ -775,14 +807,19 @@ def _plan_read(inputs: Inputs, out: Path, cache: Cache | None, ahead, *, jobs, s
     try:
         from pipeline.writers import DOCUMENT_TEMPLATES, load_templates  # only this process renders documents
 
+        # a first build (which writes every file): the tables are written where they are
+        # computed (_staged); the temporaries of the documents and provenance.json are made
+        # while the workers compute
+        stage = cache.staging() if reserve and cache is not None and shard is None and todo else None
+
         def meanwhile() -> None:  # while the workers compute
             load_templates()
-            if reserve and cache is not None:  # a table per species, the documents and provenance.json
-                cache.reserve(len(todo) + len(DOCUMENT_TEMPLATES) + 1)
+            if reserve and cache is not None:
+                cache.reserve(len(DOCUMENT_TEMPLATES) + 1 + (0 if stage else len(todo)))
 
         entries, errors, stored = _compute_all(
             todo, settings, inputs.flags, cache.root.as_posix() if cache else None,
-            workers(jobs or settings.jobs), bar, meanwhile=meanwhile if shard is None else None)
+            workers(jobs or settings.jobs), bar, meanwhile=meanwhile if shard is None else None, stage=stage)
     finally:
         bar.close()
     try:  # the workers store their cache packs meanwhile
@@ -827,7 +864,8 @@ def _plan_read(inputs: Inputs, out: Path, cache: Cache | None, ahead, *, jobs, s
             extra = e.get("_extra")
             for rel, sha in e.get("files", {}).items():
                 files[rel] = extra[rel] if extra else cache.blob(sha)
-        shas = {rel: sha256_bytes(data) for rel, data in files.items()}
+            files.update(e.get("staged", ()))
+        shas = {rel: data.sha if type(data) is Staged else sha256_bytes(data) for rel, data in files.items()}
         files[PROVENANCE] = _provenance_record(inputs, files, shas, left_out=bad)
         shas[PROVENANCE] = sha256_bytes(files[PROVENANCE])
         plan.files = files
@@ -902,8 +940,10 @@ def _check_flags(glob, flags: dict) -> None:
         raise InputError(bad)
 
 
-def _changes(out: Path, files: dict[str, bytes], manifest: dict | None) -> tuple[dict[str, bytes], list[str]]:
-    """(files whose bytes differ from what is on disk, stale files to delete)."""
+def _changes(out: Path, files: dict[str, bytes | Staged],
+             manifest: dict | None) -> tuple[dict[str, bytes | Staged], list[str]]:
+    """(files whose bytes differ from what is on disk, stale files to delete); a
+    :class:`Staged` file is compared by its sha256."""
     old = (manifest or {}).get("outputs", {})
     listing = _listing(out, files)
     writes = {}
@@ -917,14 +957,16 @@ def _changes(out: Path, files: dict[str, bytes], manifest: dict | None) -> tuple
         if st is None:
             writes[rel] = data
             continue
-        if rec is not None and st == rec[:2] and len(data) == rec[0]:
-            if sha256_bytes(data) != rec[2]:
+        staged = type(data) is Staged
+        if rec is not None and st == rec[:2] and (data.size if staged else len(data)) == rec[0]:
+            if (data.sha if staged else sha256_bytes(data)) != rec[2]:
                 writes[rel] = data
             continue
         try:
             with open(path, "rb") as fh:
-                if fh.read() != data:
-                    writes[rel] = data
+                disk = fh.read()
+            if (sha256_bytes(disk) != data.sha) if staged else (disk != data):
+                writes[rel] = data
         except OSError:
             writes[rel] = data
     deletes = {rel for rel in old if rel not in files and (out / rel).exists()}
@@ -1069,6 +1111,7 @@ def _build_locked(inputs, out, cache, t0, *, jobs, keep_going, verbosity, as_jso
                               verbosity=verbosity, as_json=as_json, progress=progress)
     finally:
         cache.drop_reserved()
+        cache.drop_staging()
 
 
 def _build_planned(inputs, out, cache, manifest, t0, *, jobs, keep_going, verbosity, as_json, progress) -> int:

@@ -12,7 +12,8 @@ one machine; deleting it only costs a cold rebuild)::
                      KEY = sha256 of everything an entry depends on, SHA = sha256 of the file
     blobs/SHA        binary per-species files (e.g. plots), content-addressed
     journal.json     present only while a build moves its files into place
-    tmp/             new file contents before they are moved into place
+    tmp/             new file contents before they are moved into place (a first build's
+                     workers write the species tables into tmp/stage-PID/ themselves)
 
 Crash safety: new contents are written to ``tmp/`` first; then the journal
 (the list of moves and deletions, and the manifest to write) is committed with
@@ -30,9 +31,11 @@ import fcntl
 import hashlib
 import json
 import os
+import shutil
 import sys
 import time
 from pathlib import Path
+from typing import NamedTuple
 
 CACHE_DIR = ".statherm-cache"
 FORMAT = 2  # bump when the layout of entries or the manifest changes (2: entries in packs)
@@ -208,6 +211,16 @@ def dump_json(value) -> bytes:
     return json.dumps(value, sort_keys=True, separators=(",", ":")).encode()
 
 
+class Staged(NamedTuple):
+    """An output file already written under the cache's ``tmp/`` (by a build worker): its
+    path there, its sha256 and size.  :meth:`Cache.commit` moves it into place instead of
+    writing it."""
+
+    name: str  # relative to tmp/
+    sha: str
+    size: int
+
+
 class Cache:
     """The cache folder of one output folder (see module docstring)."""
 
@@ -216,6 +229,7 @@ class Cache:
         self.root = out / CACHE_DIR
         self._pack_cache: dict[str, dict] | None = None
         self._reserved = 0  # empty temporaries tmp/PID-0 … made by reserve()
+        self._stage: str | None = None  # tmp/stage-PID, made by staging()
 
     # -- entries ------------------------------------------------------------
     #
@@ -389,6 +403,21 @@ class Cache:
                 pass
             self._reserved = i + 1
 
+    def staging(self) -> str:
+        """An empty folder under ``tmp/`` for this build's workers to write output files
+        into (see :class:`Staged`); removed by :meth:`drop_staging`."""
+        path = os.path.join(self.root, "tmp", f"stage-{os.getpid()}")
+        shutil.rmtree(path, ignore_errors=True)
+        os.makedirs(path)
+        self._stage = path
+        return path
+
+    def drop_staging(self) -> None:
+        """Remove the folder of :meth:`staging` and what was not moved out of it."""
+        if self._stage is not None:
+            shutil.rmtree(self._stage, ignore_errors=True)
+            self._stage = None
+
     def drop_reserved(self, keep: int = 0) -> None:
         """Remove the reserved temporaries past the first ``keep`` (which the caller has
         taken over) and forget them all."""
@@ -399,23 +428,29 @@ class Cache:
                 pass
         self._reserved = 0
 
-    def commit(self, writes: dict[str, bytes], deletes: list[str], manifest: dict) -> None:
+    def commit(self, writes: dict[str, bytes | Staged], deletes: list[str], manifest: dict) -> None:
         """Replace/delete output files as one recoverable step (see module docstring).
 
-        ``writes``: output-relative path → new bytes (only files whose bytes
-        change); ``deletes``: output-relative paths to remove; ``manifest``:
-        the manifest to store once the files are in place.  Output stats for
-        the written files are filled into ``manifest["outputs"]`` here.
+        ``writes``: output-relative path → new bytes, or the :class:`Staged` file
+        that holds them (only files whose bytes change); ``deletes``:
+        output-relative paths to remove; ``manifest``: the manifest to store once
+        the files are in place.  Output stats for the written files are filled
+        into ``manifest["outputs"]`` here.
         """
         moves = []
-        for i, (rel, data) in enumerate(sorted(writes.items())):
-            path = self._temporary(i)  # a reserved temporary is opened, truncated and written
-            with open(path, "wb") as fh:
-                fh.write(data)
-            moves.append([os.path.basename(path), rel])
-            if i == len(writes) // 2:
+        written = 0
+        for k, (rel, data) in enumerate(sorted(writes.items())):
+            if isinstance(data, Staged):
+                moves.append([data.name, rel])
+            else:
+                path = self._temporary(written)  # a reserved temporary is opened, truncated and written
+                with open(path, "wb") as fh:
+                    fh.write(data)
+                moves.append([os.path.basename(path), rel])
+                written += 1
+            if k == len(writes) // 2:
                 fault("writing-temporaries")
-        self.drop_reserved(keep=len(writes))  # the written ones are moved into place below
+        self.drop_reserved(keep=written)  # the written ones are moved into place below
         journal = {"format": FORMAT, "moves": moves, "deletes": sorted(deletes), "manifest": manifest}
         fault("before-journal")
         write_atomic(self.journal_path, dump_json(journal))
@@ -474,10 +509,18 @@ class Cache:
         elif self.journal_path.exists():
             self.journal_path.unlink()  # torn write cannot happen (os.replace), but be safe
         try:
-            for name in os.listdir(self.root / "tmp"):
-                os.unlink(self.root / "tmp" / name)
+            names = os.listdir(self.root / "tmp")
         except OSError:
-            pass
+            names = []
+        for name in names:
+            path = self.root / "tmp" / name
+            if path.is_dir() and not path.is_symlink():  # a build's staging folder
+                shutil.rmtree(path, ignore_errors=True)
+                continue
+            try:
+                os.unlink(path)
+            except OSError:
+                pass
         return done
 
 

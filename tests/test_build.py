@@ -191,7 +191,7 @@ def test_a_worker_exception_is_raised_in_the_parent_with_its_traceback():
     import pipeline.build as b
 
     # settings=None makes _compute fail in the worker: the same exception type comes back
-    workers = b._Workers([[("k", "x.yaml", b"name: X\n", None)]] * 2, 2, (None, {}, None))
+    workers = b._Workers([[("k", "x.yaml", b"name: X\n", None)]] * 2, 2, (None, {}, None, None))
     with pytest.raises(AttributeError) as caught:
         list(workers.results())
     assert workers.stored() == set()  # and the workers are gone
@@ -207,7 +207,7 @@ def test_a_worker_exception_is_raised_in_the_parent_with_its_traceback():
     receive, send = multiprocessing.Pipe(duplex=False)
     real, b._compute = b._compute, fail
     try:
-        b._work([[]], multiprocessing.Value("l", 0), None, {}, None, send)
+        b._work([[]], multiprocessing.Value("l", 0), None, {}, None, None, send)
     finally:
         b._compute = real
     i, kind, (exc, trace) = pickle.loads(receive.recv_bytes())
@@ -262,12 +262,12 @@ def test_a_first_build_reserves_its_temporaries_and_leaves_none(tmp_path, monkey
     real = Cache.reserve
     monkeypatch.setattr(Cache, "reserve", lambda self, n: asked.append(n) or real(self, n))
     assert run("build", "--species", str(species), "--out", str(tmp_path / "first"), "--quiet")[0] == 0
-    assert asked == [len(SMALL) + 4]  # a table per species, thermo.dat, thermo.yaml, REPORT.md, provenance.json
+    assert asked == [4]  # thermo.dat, thermo.yaml, REPORT.md, provenance.json (the workers write the tables)
     assert {rel: b for rel, (b, _) in snapshot(tmp_path / "first").items()} == \
         {rel: b for rel, (b, _) in snapshot(out).items()}
     assert not os.listdir(tmp_path / "first" / ".statherm-cache" / "tmp")
     assert run("build", "--species", str(species), "--out", str(tmp_path / "first"), "--quiet")[0] == 0
-    assert asked == [len(SMALL) + 4]  # a rebuild has a manifest: nothing reserved
+    assert asked == [4]  # a rebuild has a manifest: nothing reserved
     edit(species / "HO2.yaml", "symmetry: ", "symmetry: -")
     rc, _, err = run("build", "--species", str(species), "--out", str(tmp_path / "failed"), "--quiet")
     assert rc == 1 and len(asked) == 2
@@ -462,6 +462,56 @@ def test_sigkill_at_each_step_leaves_old_or_new_files(tmp_path, point):
         assert rc == 0, err
     assert {rel: b for rel, (b, _) in snapshot(out).items()} == new
     assert not os.listdir(out / ".statherm-cache" / "tmp")
+
+
+@pytest.mark.parametrize("point", FAULT_POINTS)
+def test_sigkill_of_a_first_build_at_each_step_leaves_old_or_new_files(tmp_path, point):
+    """The same for a first build into a folder that holds an output but no cache: its workers
+    write the tables into a staging folder and the commit moves them; the next build finishes
+    or redoes it, and no staging folder is left."""
+    species, out, old, new = _changed_database(tmp_path)
+    shutil.rmtree(out / ".statherm-cache")
+    proc = run_process("build", "--species", str(species), "--out", str(out), env={"STATHERM_FAULT": point})
+    assert proc.returncode == -signal.SIGKILL
+    now = {rel: b for rel, (b, _) in snapshot(out).items()}
+    for rel, data in now.items():
+        assert data in (old.get(rel), new.get(rel)), rel
+    if point in ("writing-temporaries", "before-journal"):
+        assert now == old
+    tmp = out / ".statherm-cache" / "tmp"
+    assert any(name.startswith("stage-") for name in os.listdir(tmp))  # the killed build's staging folder
+    assert run("build", "--species", str(species), "--out", str(out), "--quiet")[0] == 0
+    assert {rel: b for rel, (b, _) in snapshot(out).items()} == new
+    assert not os.listdir(tmp)
+
+
+def test_staged_tables_are_written_once_and_compared_by_hash(tmp_path):
+    """_staged writes each table where it was computed and hands the parent a Staged
+    reference (sha256, size) instead of the text, leaving the entries for the cache whole;
+    _changes compares a Staged file with the file on disk by its hash."""
+    import pipeline.build as b
+    from pipeline.cache import Staged, sha256_bytes
+
+    entries = [{"name": "OH", "fragments": {"name": "OH", "table_csv": "T,Cp\n298.15,29.9\n", "record": "r"}},
+               {"name": "H2O", "fragments": {"name": "H2O", "table_csv": "T,Cp\n298.15,33.6\n", "record": "s"}}]
+    stage = tmp_path / "tmp" / "stage-1"
+    stage.mkdir(parents=True)
+    light, errors = b._staged((entries, ["e"]), str(stage))
+    assert errors == ["e"] and entries[0]["fragments"]["table_csv"].startswith("T,Cp")
+    for e, sent in zip(entries, light):
+        data = e["fragments"]["table_csv"].encode()
+        rel = f"tables/{e['name']}.csv"
+        assert sent["fragments"]["table_csv"] is None and sent["fragments"]["record"] == e["fragments"]["record"]
+        assert sent["staged"] == {rel: Staged(f"stage-1/{rel}", sha256_bytes(data), len(data))}
+        assert (stage / rel).read_bytes() == data
+    assert b._staged((entries, []), None) == (entries, [])
+    out = tmp_path / "out"
+    (out / "tables").mkdir(parents=True)
+    (out / "tables" / "OH.csv").write_bytes(entries[0]["fragments"]["table_csv"].encode())
+    (out / "tables" / "H2O.csv").write_bytes(b"other bytes")
+    files = {rel: st for e in light for rel, st in e["staged"].items()}
+    writes, deletes = b._changes(out, files, None)
+    assert list(writes) == ["tables/H2O.csv"] and deletes == []
 
 
 def test_sigkill_at_random_moments(tmp_path):

@@ -594,7 +594,8 @@ def assemble(fragments: list[dict[str, str]], settings) -> dict[str, bytes]:
 
     Species are written in name order whatever the order of ``fragments``;
     only string joins and the file headers (from ``settings``: ranges,
-    pressure, tool version) happen here.
+    pressure, tool version) happen here.  A species whose ``table_csv`` is None
+    (its table already written by a build worker) gets no table here.
     """
     frags = sorted(fragments, key=lambda f: f["name"])
     names = [f["name"] for f in frags]
@@ -623,5 +624,6 @@ def assemble(fragments: list[dict[str, str]], settings) -> dict[str, bytes]:
         **common,
     ).encode("utf-8")
     for f in frags:
-        files[table_path(f["name"])] = f["table_csv"].encode("utf-8")
+        if f["table_csv"] is not None:
+            files[table_path(f["name"])] = f["table_csv"].encode("utf-8")
     return files
