@@ -765,8 +765,10 @@ def test_check_notices_a_hand_edited_output(tmp_path):
 
 def _packs(out: Path) -> dict[str, set[str]]:
     """Cache pack file → the keys of the entries it holds."""
+    from pipeline.cache import Cache
+
     folder = out / ".statherm-cache" / "entries"
-    return {p.name: set(json.loads(p.read_bytes())["entries"]) for p in folder.iterdir()}
+    return {p.name: set(Cache(out)._read_pack(p.name)) for p in folder.iterdir()}
 
 
 def test_cache_entries_are_packed_and_dead_ones_pruned(tmp_path):
@@ -811,6 +813,29 @@ def test_damaged_or_foreign_cache_files_are_ignored(tmp_path):
     assert f"{len(SMALL)} computed" in err
     assert {rel: b for rel, (b, _) in snapshot(out).items()} == before
     assert "stray.json" not in {p.name for p in entries.iterdir()}
+
+
+def test_a_pack_keeps_its_texts_after_its_json_and_a_torn_one_is_no_pack(tmp_path):
+    """Cache packs hold the entries' texts raw after one line of JSON: they read back equal,
+    non-ASCII text included; a pack cut short (or with a foreign head) reads as no pack."""
+    from pipeline.cache import Cache
+
+    cache = Cache(tmp_path)
+    (cache.root / "entries").mkdir(parents=True)
+    entries = {"k1": {"key": "k1", "name": "OH", "warnings": [], "files": {},
+                      "fragments": {"name": "OH", "table_csv": "T [K],Cp° [J/mol/K]\n298.15,29.886\n",
+                                    "report_note": "", "yaml": "- name: OH  # \u2014 \"quoted\"\n"}},
+               "k2": {"key": "k2", "name": "H2O", "warnings": [], "files": {},
+                      "fragments": {"name": "H2O", "table_csv": "T,Cp\n", "report_note": "n\n", "yaml": ""}}}
+    name = cache._write_pack(entries)
+    assert Cache(tmp_path)._read_pack(name) == entries
+    path = cache.root / "entries" / name
+    data = path.read_bytes()
+    assert data.count(b"\n") > 1 and b"298.15,29.886\n" in data  # the table as it is, not escaped
+    path.write_bytes(data[:-3])
+    assert Cache(tmp_path)._read_pack(name) is None
+    path.write_bytes(b"[1, 2]\n" + data.partition(b"\n")[2])
+    assert Cache(tmp_path)._read_pack(name) is None
 
 
 def test_jobs_setting_auto_number_or_error(tmp_path):
