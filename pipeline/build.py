@@ -406,11 +406,13 @@ def _staged(result: tuple[list[dict], list[dict]], stage: str | None) -> tuple[l
 
 
 #: most species in one chunk.  The fit, the tables and the writers are batched across a
-#: chunk's species, and each batch has a fixed cost (about 10 ms, mostly the fit's numpy
-#: calls per Lawson pass, whatever the number of species): few large chunks are cheaper,
-#: up to the memory a chunk holds.  (Guided self-scheduling — chunks shrinking to 64
-#: species towards the end, so the workers finish together — measured slower at 1,000
-#: species: 1.35 s against 1.31 s median cold build, 12 interleaved runs.)
+#: chunk's species; one chunk per worker measured fastest at 1,000 species, although the
+#: computing itself costs the same per species in batches of 50 to 500 and the host's two
+#: CPUs often differ in speed by 10–30 % (so one worker finishes 50–170 ms before the
+#: other): median cold build 0.90 s against 0.99 s with chunks of 250 and 1.06 s with 125
+#: (14 interleaved runs; each chunk costs a result message, a pack and a staging round).
+#: Guided self-scheduling (chunks shrinking to 64 species), two small chunks at the end
+#: (450, 450, 50, 50) and one pack per worker instead of one per chunk did no better.
 CHUNK_MAX = 1000
 #: fewest species in a chunk of a one-process build (its chunks pace the progress bar)
 SERIAL_CHUNK_MIN = 250
