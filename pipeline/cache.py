@@ -481,11 +481,36 @@ class Cache:
             if k == len(writes) // 2:
                 fault("writing-temporaries")
         self.drop_reserved(keep=written)  # the written ones are moved into place below
+        moves = self._whole_folders(moves)
         journal = {"format": FORMAT, "moves": moves, "deletes": sorted(deletes), "manifest": manifest}
         fault("before-journal")
         write_atomic(self.journal_path, dump_json(journal))
         fault("after-journal")
         self._apply(journal)
+
+    def _whole_folders(self, moves: list[list[str]]) -> list[list[str]]:
+        """``moves`` with the moves out of a staged folder made one move of the folder, where
+        that folder holds just those files under their own names and their destination
+        folder does not exist yet (a first build: ``tables/`` arrives in one rename instead
+        of one per species)."""
+        groups: dict[tuple[str, str], list[int]] = {}
+        for i, (tmp, rel) in enumerate(moves):
+            src, _, leaf = tmp.rpartition("/")
+            dest, _, name = rel.rpartition("/")
+            if src and dest and leaf == name:
+                groups.setdefault((src, dest), []).append(i)
+        if not groups:
+            return moves
+        drop, folded = set(), []
+        for (src, dest), members in groups.items():
+            try:
+                held = os.listdir(os.path.join(self.root, "tmp", src))
+            except OSError:
+                continue
+            if len(held) == len(members) and not os.path.lexists(os.path.join(self.out, dest)):
+                drop.update(members)
+                folded.append([src, dest])
+        return [m for i, m in enumerate(moves) if i not in drop] + folded
 
     def _apply(self, journal: dict) -> None:
         tmpdir, out = os.path.join(self.root, "tmp"), os.fspath(self.out)

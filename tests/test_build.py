@@ -485,6 +485,39 @@ def test_sigkill_of_a_first_build_at_each_step_leaves_old_or_new_files(tmp_path,
     assert not os.listdir(tmp)
 
 
+def test_staged_tables_move_as_one_folder_into_a_folder_without_tables(tmp_path):
+    """A first build moves its staged tables/ folder in one rename when the output has no
+    tables/ and the folder holds just the files written; else file by file."""
+    from pipeline.cache import Cache
+
+    cache = Cache(tmp_path / "out")
+    staged = cache.root / "tmp" / "stage-1" / "tables"
+    staged.mkdir(parents=True)
+    for name in ("A.csv", "B.csv"):
+        (staged / name).write_text(name)
+    moves = [["stage-1/tables/A.csv", "tables/A.csv"], ["7-0", "thermo.dat"], ["stage-1/tables/B.csv", "tables/B.csv"]]
+    assert cache._whole_folders(moves) == [["7-0", "thermo.dat"], ["stage-1/tables", "tables"]]
+    assert cache._whole_folders(moves[:2]) == moves[:2]  # B.csv is not written: it stays behind
+    (tmp_path / "out" / "tables").mkdir()
+    assert cache._whole_folders(moves) == moves  # tables/ exists: each file is moved
+
+
+@pytest.mark.parametrize("point", ["after-journal", "moving"])
+def test_sigkill_of_a_first_build_into_an_empty_folder_is_completed(tmp_path, point):
+    """Killed after its journal, a first build into an empty folder (whose tables/ moves as
+    one folder) is completed by the next command: the same files as an uninterrupted build."""
+    species, out = database(tmp_path)
+    fresh = tmp_path / "fresh"
+    proc = run_process("build", "--species", str(species), "--out", str(fresh), env={"STATHERM_FAULT": point})
+    assert proc.returncode == -signal.SIGKILL
+    journal = json.loads((fresh / ".statherm-cache" / "journal.json").read_bytes())
+    assert ["tables"] == [rel for tmp, rel in journal["moves"] if tmp.endswith("/tables")]
+    rc, _, err = run("check", "--species", str(species), "--out", str(fresh))
+    assert rc == 0, err
+    assert {rel: b for rel, (b, _) in snapshot(fresh).items()} == {rel: b for rel, (b, _) in snapshot(out).items()}
+    assert not os.listdir(fresh / ".statherm-cache" / "tmp")
+
+
 def test_staged_tables_are_written_once_and_compared_by_hash(tmp_path):
     """_staged writes each table where it was computed and hands the parent a Staged
     reference (sha256, size) instead of the text, leaving the entries for the cache whole;
