@@ -1264,16 +1264,7 @@ def _check_provenance(inputs: Inputs, out: Path) -> list[Diagnostic]:
         return [Diagnostic(where, "", "missing: the output was not written by this version of `statherm build`")]
     except (OSError, ValueError, KeyError, TypeError) as exc:
         return [Diagnostic(where, "", f"unreadable ({type(exc).__name__}): rebuild the output")]
-    diags = []
-    now = {name: (disp, sha) for name, disp, _, sha in inputs.files}
-    for name in sorted(set(now) | set(recorded_species)):
-        disp = now[name][0] if name in now else (inputs.dir / name).as_posix()
-        if name not in recorded_species:
-            diags.append(Diagnostic(disp, "", "new species file, not yet in the output"))
-        elif name not in now:
-            diags.append(Diagnostic(disp, "", "removed, but still in the output"))
-        elif now[name][1] != recorded_species[name]:
-            diags.append(Diagnostic(disp, "", "changed since the output was built"))
+    diags = _species_changes(inputs, recorded_species)
     if rec.get("settings_file") != inputs.settings_sha or rec.get("flags") != inputs.flags:
         diags.append(Diagnostic(inputs.settings_file, "", "settings changed since the output was built"))
     if rec.get("code") != inputs.code or rec.get("tool_version") != __version__:
@@ -1288,6 +1279,22 @@ def _check_provenance(inputs: Inputs, out: Path) -> list[Diagnostic]:
             diags.append(Diagnostic((out / rel).as_posix(), "", "modified since the build that wrote it"))
     for rel in sorted(_leftovers(out, {**recorded_files, PROVENANCE: b""})):
         diags.append(Diagnostic((out / rel).as_posix(), "", "not written by the last build (left over)"))
+    return diags
+
+
+def _species_changes(inputs: Inputs, recorded: dict[str, str]) -> list[Diagnostic]:
+    """The species files new, removed or changed since an output that ``recorded`` them
+    (species file name → sha256), in file-name order."""
+    now = {name: (disp, sha) for name, disp, _, sha in inputs.files}
+    diags = []
+    for name in sorted(set(now) | set(recorded)):
+        disp = now[name][0] if name in now else (inputs.dir / name).as_posix()
+        if name not in recorded:
+            diags.append(Diagnostic(disp, "", "new species file, not yet in the output"))
+        elif name not in now:
+            diags.append(Diagnostic(disp, "", "removed, but still in the output"))
+        elif now[name][1] != recorded[name]:
+            diags.append(Diagnostic(disp, "", "changed since the output was built"))
     return diags
 
 
@@ -1306,19 +1313,13 @@ def _stale_reasons(inputs, out, plan, manifest, writes, deletes) -> list[Diagnos
     except OSError:
         on_disk = None
     old, new = _provenance(on_disk), _provenance(plan.files.get("thermo.yaml"))
-    disp_of = {name: disp for name, disp, _, _ in inputs.files}
     explained = False
     moved: dict[str, tuple] = {}
     if old is not None and new is not None:
-        for f in sorted(set(old) | set(new)):
-            disp = disp_of.get(f, (inputs.dir / f).as_posix())
-            if f not in old:
-                diags.append(Diagnostic(disp, "", "new species file, not yet in the output"))
-            elif f not in new:
-                diags.append(Diagnostic(disp, "", "removed, but still in the output"))
-            elif old[f].get("sha256") != new[f].get("sha256"):
-                diags.append(Diagnostic(disp, "", "changed since the output was built"))
-            else:
+        # the fresh build is of the species files as they are now: compare those with the record
+        diags.extend(_species_changes(inputs, {f: p.get("sha256") for f, p in old.items()}))
+        for f in sorted(set(old) & set(new)):
+            if old[f].get("sha256") == new[f].get("sha256"):
                 a, b = old[f].get("model") or {}, new[f].get("model") or {}
                 for k in sorted(set(a) | set(b)):
                     if a.get(k) != b.get(k):

@@ -382,6 +382,18 @@ def test_check_names_what_is_stale(tmp_path):
     assert run(*args) == (0, "", "")
 
 
+def test_check_names_new_and_removed_species_files(tmp_path):
+    species, out = database(tmp_path)
+    shutil.copy(species / "Ar.yaml", species / "Ar-copy.yaml")
+    edit(species / "Ar-copy.yaml", "name: AR", "name: ARX")
+    (species / "H2O.yaml").unlink()
+    rc, _, err = run("check", "--species", str(species), "--out", str(out))
+    assert rc == 1
+    assert "Ar-copy.yaml: new species file, not yet in the output" in err
+    assert "H2O.yaml: removed, but still in the output" in err
+    assert "changed since the output was built" not in err
+
+
 def test_check_without_a_cache_compares_bytes(tmp_path):
     """A fresh clone (CI) has output/ but no cache: check rebuilds in memory and compares."""
     species, out = database(tmp_path)
