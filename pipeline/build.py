@@ -814,10 +814,10 @@ def _plan_read(inputs: Inputs, out: Path, cache: Cache | None, ahead, *, jobs, s
         # while the workers compute
         stage = cache.staging() if reserve and cache is not None and shard is None and todo else None
 
-        def meanwhile() -> None:  # while the workers compute
+        def meanwhile() -> None:  # while the workers compute (so only when there is something to compute)
             load_templates()
-            if reserve and cache is not None:
-                cache.reserve(len(DOCUMENT_TEMPLATES) + 1 + (0 if stage else len(todo)))
+            if stage:  # the documents and provenance.json; the workers write the tables
+                cache.reserve(len(DOCUMENT_TEMPLATES) + 1)
 
         entries, errors, stored = _compute_all(
             todo, settings, inputs.flags, cache.root.as_posix() if cache else None,
@@ -867,7 +867,7 @@ def _plan_read(inputs: Inputs, out: Path, cache: Cache | None, ahead, *, jobs, s
             for rel, sha in e.get("files", {}).items():
                 files[rel] = extra[rel] if extra else cache.blob(sha)
             files.update(e.get("staged", ()))
-        shas = {rel: data.sha if type(data) is Staged else sha256_bytes(data) for rel, data in files.items()}
+        shas = {rel: data.sha if isinstance(data, Staged) else sha256_bytes(data) for rel, data in files.items()}
         files[PROVENANCE] = _provenance_record(inputs, files, shas, left_out=bad)
         shas[PROVENANCE] = sha256_bytes(files[PROVENANCE])
         plan.files = files
@@ -959,7 +959,7 @@ def _changes(out: Path, files: dict[str, bytes | Staged],
         if st is None:
             writes[rel] = data
             continue
-        staged = type(data) is Staged
+        staged = isinstance(data, Staged)
         if rec is not None and st == rec[:2] and (data.size if staged else len(data)) == rec[0]:
             if (data.sha if staged else sha256_bytes(data)) != rec[2]:
                 writes[rel] = data

@@ -537,12 +537,12 @@ def test_staged_tables_are_written_once_and_compared_by_hash(tmp_path):
     import pipeline.build as b
     from pipeline.cache import Staged, sha256_bytes
 
-    entries = [{"name": "OH", "fragments": {"name": "OH", "table_csv": "T,Cp\n298.15,29.9\n", "record": "r"}},
-               {"name": "H2O", "fragments": {"name": "H2O", "table_csv": "T,Cp\n298.15,33.6\n", "record": "s"}}]
+    entries = [{"name": "OH", "fragments": {"name": "OH", "table_csv": "a,b\nfirst,row\n", "record": "r"}},
+               {"name": "H2O", "fragments": {"name": "H2O", "table_csv": "a,b\nother,row\n", "record": "s"}}]
     stage = tmp_path / "tmp" / "stage-1"
     stage.mkdir(parents=True)
     light, errors = b._staged((entries, ["e"]), str(stage))
-    assert errors == ["e"] and entries[0]["fragments"]["table_csv"].startswith("T,Cp")
+    assert errors == ["e"] and entries[0]["fragments"]["table_csv"].startswith("a,b")
     for e, sent in zip(entries, light):
         data = e["fragments"]["table_csv"].encode()
         rel = f"tables/{e['name']}.csv"
@@ -868,7 +868,7 @@ def test_a_pack_keeps_its_texts_after_its_json_and_a_torn_one_is_no_pack(tmp_pat
     cache = Cache(tmp_path)
     (cache.root / "entries").mkdir(parents=True)
     entries = {"k1": {"key": "k1", "name": "OH", "warnings": [], "files": {},
-                      "fragments": {"name": "OH", "table_csv": "T [K],Cp° [J/mol/K]\n298.15,29.886\n",
+                      "fragments": {"name": "OH", "table_csv": "T [K],Cp° [J/mol/K]\nfirst,row\n",
                                     "report_note": "", "yaml": "- name: OH  # \u2014 \"quoted\"\n"}},
                "k2": {"key": "k2", "name": "H2O", "warnings": [], "files": {},
                       "fragments": {"name": "H2O", "table_csv": "T,Cp\n", "report_note": "n\n", "yaml": ""}}}
@@ -876,7 +876,7 @@ def test_a_pack_keeps_its_texts_after_its_json_and_a_torn_one_is_no_pack(tmp_pat
     assert Cache(tmp_path)._read_pack(name) == entries
     path = cache.root / "entries" / name
     data = path.read_bytes()
-    assert data.count(b"\n") > 1 and b"298.15,29.886\n" in data  # the table as it is, not escaped
+    assert data.count(b"\n") > 1 and b"K],Cp\xc2\xb0 [J/mol/K]\nfirst,row\n" in data  # as it is, not escaped
     path.write_bytes(data[:-3])
     assert Cache(tmp_path)._read_pack(name) is None
     path.write_bytes(b"[1, 2]\n" + data.partition(b"\n")[2])
