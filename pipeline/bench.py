@@ -167,9 +167,13 @@ def frozen_code(work: Path) -> Path:
     """A copy of the pipeline package (byte-compiled) to run the timed builds from.
 
     Edits to the working copy during a run (other people's, an editor's) then
-    cannot change the code between the cold build and the rebuilds.
+    cannot change the code between the cold build and the rebuilds.  Its
+    constants memo (:mod:`pipeline.codata`) is written with the bytecode, as an
+    installed copy has it after its first run.
     """
     import compileall
+
+    from pipeline import codata
 
     dest = work / "code"
     if dest.exists():
@@ -177,6 +181,9 @@ def frozen_code(work: Path) -> Path:
     shutil.copytree(Path(__file__).resolve().parent, dest / "pipeline",
                     ignore=shutil.ignore_patterns("__pycache__", "*.pyc", "*.tmp"))
     compileall.compile_dir(dest, quiet=1)
+    memo = codata.memo_path(str(dest / "pipeline" / "__pycache__"))
+    if memo:
+        codata.write_memo(memo, *codata.from_scipy())
     return dest
 
 

@@ -12,9 +12,8 @@ from __future__ import annotations
 import dataclasses
 from typing import Any
 
-from scipy import constants as C
-
 from pipeline import units
+from pipeline.codata import C
 from pipeline.geometry import (
     ISOTOPE,
     LINEAR_TOLERANCE,

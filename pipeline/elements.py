@@ -10,7 +10,7 @@ isotope (bracketed in the IUPAC table).
 
 from __future__ import annotations
 
-from scipy import constants as C
+from pipeline.codata import C
 
 #: symbol → standard atomic weight [u]
 ATOMIC_WEIGHT: dict[str, float] = {

@@ -87,9 +87,9 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.polynomial import Chebyshev, Polynomial
-from scipy import constants as C
 
 from pipeline import nasa7
+from pipeline.codata import C
 from pipeline.nasa7 import Nasa7Fit
 from pipeline.thermo import T_REF
 

@@ -14,7 +14,8 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import constants as C
+
+from pipeline.codata import C
 
 #: symbol → (atomic mass [u] of the most abundant isotope, its nuclear spin I).
 #: Masses: AME2020 atomic mass evaluation (M. Wang et al., Chinese Phys. C 45,

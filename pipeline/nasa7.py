@@ -20,7 +20,8 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-from scipy import constants as C
+
+from pipeline.codata import C
 
 
 def cp_r(a, T):

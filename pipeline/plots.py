@@ -155,7 +155,7 @@ def render_plot(table, fit, uncertainty=None, reference=None, title: str | None 
     Raises :class:`PlotsUnavailable` without matplotlib.
     """
     import numpy as np
-    from scipy import constants as C
+    from pipeline.codata import C
 
     matplotlib, Figure, Canvas = _mpl()
     T = np.asarray(table.T, dtype=float)

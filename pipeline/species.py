@@ -25,10 +25,9 @@ from typing import Any
 
 from pipeline import units
 from pipeline.cache import display_path as _display, species_files  # noqa: F401 (stdlib-only helpers)
+from pipeline.codata import C
 from pipeline.diagnostics import Diagnostic, InputError
 from pipeline.elements import ATOMIC_WEIGHT, formula_mass
-
-from scipy import constants as C
 
 # --------------------------------------------------------------------------
 # The Species record

@@ -10,8 +10,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import constants as C
 
+from pipeline.codata import C
 from pipeline.elements import ELEMENT_H298_H0
 from pipeline.statmech import sorted_terms
 

@@ -39,7 +39,8 @@ import dataclasses
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import constants as C
+
+from pipeline.codata import C
 
 #: relative central-difference step for inputs with a non-zero value
 _REL_STEP = 1e-4

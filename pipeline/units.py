@@ -2,12 +2,13 @@
 
 Spectroscopic energies are held internally as wavenumbers in [m^-1]
 (the SI unit of ν̃), moments of inertia in [kg m^2], molar energies in
-[J/mol].  All constants come from :mod:`scipy.constants` (CODATA).
+[J/mol].  All constants come from :mod:`scipy.constants` (CODATA), through
+:mod:`pipeline.codata`.
 """
 
 from __future__ import annotations
 
-from scipy import constants as C
+from pipeline.codata import C
 
 #: wavenumber-like quantities (rotational constants, frequencies, levels) → [m^-1]
 WAVENUMBER = {

@@ -8,8 +8,8 @@ Nothing here reads files.
 from __future__ import annotations
 
 import numpy as np
-from scipy import constants as C
 
+from pipeline.codata import C
 from pipeline.statmech.electronic import electronic, ground_entropy
 from pipeline.statmech.rotation import linear_rotor, linear_rotors, nonlinear_rotor
 from pipeline.statmech.terms import Terms, level_sum

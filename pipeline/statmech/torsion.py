@@ -19,8 +19,8 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import constants as C
 
+from pipeline.codata import C
 from pipeline.statmech.terms import Terms, level_sum
 
 #: levels more than DEPTH·kT_max above the ground level are left out (weight < e^-50)

@@ -3,8 +3,8 @@
 from __future__ import annotations
 
 import numpy as np
-from scipy import constants as C
 
+from pipeline.codata import C
 from pipeline.statmech.terms import Terms
 
 

@@ -43,9 +43,9 @@ import os
 from pathlib import PurePath
 
 import numpy as np
-from scipy import constants as C
 
 from pipeline import __version__
+from pipeline.codata import C
 from pipeline.thermo import T_REF
 from pipeline.writers import formats
 from pipeline.writers.rounding import printed_fit
