@@ -671,8 +671,8 @@ READ_AHEAD_MIN = 64
 def _read_ahead(inputs: Inputs, cache: Cache | None, shard=None):
     """Start reading the YAML of the species files the cache has never seen, in a forked process.
 
-    A cold build spends its first few tenths of a second importing numpy and
-    scipy; with a second CPU, a child that needs only PyYAML
+    A cold build spends its first tenth of a second importing numpy and the
+    compute modules; with a second CPU, a child that needs only PyYAML
     (:mod:`pipeline.safeyaml`) reads the files meanwhile.  Returns a function
     that reads, in this process, the files the child has not yet taken (the two
     take blocks of :data:`READ_BLOCK` files in turn from a shared counter, so

@@ -6,6 +6,7 @@ import ast
 import importlib.machinery
 import json
 import os
+import shutil
 import sys
 from pathlib import Path
 from types import SimpleNamespace
@@ -102,3 +103,26 @@ def test_key_follows_scipys_files(tmp_path, monkeypatch):
     assert one and two and one != two
     target.unlink()
     assert codata.memo_path(str(tmp_path)) is None
+
+
+def test_cold_build_with_a_memo_imports_no_scipy_constants(tmp_path):
+    """With the memo in place (as after a first run), a cold build never imports scipy.constants."""
+    import subprocess
+
+    from buildkit import SMALL
+    from refdata import ROOT
+
+    path = codata.memo_path()
+    assert path and codata.write_memo(path, *codata.from_scipy())  # what the first run writes
+    species = tmp_path / "species"
+    species.mkdir()
+    for name in SMALL:
+        shutil.copy(ROOT / "species" / f"{name}.yaml", species / f"{name}.yaml")
+    env = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
+    proc = subprocess.run([sys.executable, "-X", "importtime", "-m", "pipeline", "build", "-q", "--jobs", "1",
+                           "--species", str(species), "--out", str(tmp_path / "out")],
+                          cwd=ROOT, capture_output=True, text=True, env=env)
+    assert proc.returncode == 0, proc.stderr
+    imported = {line.split("|")[-1].strip() for line in proc.stderr.splitlines() if line.startswith("import time:")}
+    assert "pipeline.fit" in imported  # it did compute
+    assert "scipy.constants" not in imported and "scipy._lib._array_api" not in imported
