@@ -506,6 +506,7 @@ def _child(target, args: tuple):
     cannot be started."""
     ctx = _context()
     receive, send = ctx.Pipe(duplex=False)
+    _widen(send)
     child = ctx.Process(target=target, args=(*args, send), daemon=True)
     try:
         child.start()
@@ -515,6 +516,25 @@ def _child(target, args: tuple):
         return None
     send.close()
     return child, receive
+
+
+#: pipe capacity asked for a child's results (Linux; the kernel's default is 64 KiB)
+PIPE_BYTES = 1 << 20
+
+
+def _widen(conn) -> None:
+    """Give the pipe behind ``conn`` a capacity of :data:`PIPE_BYTES` where the platform
+    allows it (Linux ``F_SETPIPE_SZ``; up to ``/proc/sys/fs/pipe-max-size``, 1 MiB by
+    default).  A worker's result (1.3 MB for 500 species) then crosses in two writes
+    instead of twenty 64 KiB turns, each of which waits for the reader to be scheduled:
+    with the other worker still busy, the last worker's send took 27–49 ms where its
+    pickling takes 3."""
+    try:
+        import fcntl
+
+        fcntl.fcntl(conn.fileno(), fcntl.F_SETPIPE_SZ, PIPE_BYTES)
+    except (ImportError, AttributeError, OSError):
+        pass  # not Linux, or above the system's limit: the default capacity only costs time
 
 
 def _take(counter, n: int) -> int:

@@ -184,6 +184,30 @@ def test_a_killed_worker_fails_the_build_and_leaves_the_output(tmp_path):
     assert snapshot(out) != before
 
 
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="pipe capacity is a Linux setting")
+def test_a_childs_pipe_holds_a_whole_result_chunk():
+    """A worker's result pipe is widened to PIPE_BYTES (or the system's limit), and a
+    message of that size still arrives whole."""
+    import fcntl
+
+    import pipeline.build as b
+
+    limit = int(Path("/proc/sys/fs/pipe-max-size").read_text())
+    child, receive = b._child(_send_blob, (b.PIPE_BYTES // 2,))
+    try:
+        assert fcntl.fcntl(receive.fileno(), fcntl.F_GETPIPE_SZ) >= min(b.PIPE_BYTES, limit)
+        assert receive.recv_bytes() == b"x" * (b.PIPE_BYTES // 2)
+    finally:
+        receive.close()
+        child.join()
+    assert child.exitcode == 0
+
+
+def _send_blob(size, conn):
+    conn.send_bytes(b"x" * size)
+    conn.close()
+
+
 def test_a_worker_exception_is_raised_in_the_parent_with_its_traceback():
     import multiprocessing
     import pickle
