@@ -527,8 +527,8 @@ def _widen(conn) -> None:
     allows it (Linux ``F_SETPIPE_SZ``; up to ``/proc/sys/fs/pipe-max-size``, 1 MiB by
     default).  A worker's result (1.3 MB for 500 species) then crosses in two writes
     instead of twenty 64 KiB turns, each of which waits for the reader to be scheduled:
-    with the other worker still busy, the last worker's send took 27–49 ms where its
-    pickling takes 3."""
+    traced on a loaded host, with the other worker still busy, the last worker's send
+    took 27–49 ms where its pickling takes 3 (on a quiet host 2–7 ms either way)."""
     try:
         import fcntl
 

@@ -12,7 +12,7 @@ can start, for a dozen numbers.  So the numbers are memoised, as Python
 memoises bytecode: the first process that needs them imports
 :mod:`scipy.constants` and writes them to ``__pycache__/codata-<key>.json``
 beside this module (JSON keeps a float's shortest repr, which reads back to the
-same float); later processes read that file (about 0.3 ms).  The key is a
+same float); later processes read that file (4.5 ms with the json import).  The key is a
 sha256 over the paths, sizes and modification times of the scipy source files
 that define the values, found without importing scipy, so an upgrade or a
 reinstall of scipy gives a new key and the old memo is not used.
@@ -111,27 +111,25 @@ def _read(path: str):
         return None
     if not all(type(v) is float for v in values.values()):
         return None
-    if not all(len(p) == 3 and type(p[0]) is float and type(p[1]) is str for p in physical.values()):
+    if not all(len(p) == 3 and type(p[0]) is float and type(p[1]) is str and type(p[2]) is float
+               for p in physical.values()):
         return None
     return values, physical
 
 
 def write_memo(path: str, values: dict[str, float], physical: dict[str, tuple]) -> bool:
-    """Write the memo atomically (temporary file, then ``os.replace``); False when it cannot be."""
+    """Write the memo atomically (:func:`pipeline.cache.write_atomic`); False when it cannot be."""
+    from pathlib import Path
+
+    from pipeline.cache import write_atomic
+
     data = json.dumps({"values": values, "physical": {n: list(p) for n, p in physical.items()}},
                       sort_keys=True, indent=1).encode()
-    tmp = f"{path}.{os.getpid()}.tmp"
     try:
         os.makedirs(os.path.dirname(path), exist_ok=True)
-        with open(tmp, "wb") as fh:
-            fh.write(data)
-        os.replace(tmp, path)
+        write_atomic(Path(path), data)
         return True
     except OSError:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
         return False
 
 

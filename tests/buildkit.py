@@ -40,6 +40,11 @@ def popen(*argv: str, env: dict | None = None) -> subprocess.Popen:
                             stderr=subprocess.PIPE, text=True, env={**os.environ, **(env or {})})
 
 
+def imported_modules(importtime_stderr: str) -> set[str]:
+    """The modules a ``python -X importtime`` run imported, from its standard error."""
+    return {line.split("|")[-1].strip() for line in importtime_stderr.splitlines() if line.startswith("import time:")}
+
+
 def snapshot(folder: Path) -> dict[str, tuple[bytes, int]]:
     """Every output file (the cache excluded): relative path → (bytes, mtime_ns)."""
     out = {}

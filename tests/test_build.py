@@ -12,7 +12,7 @@ from pathlib import Path
 
 import pytest
 
-from buildkit import SMALL, database, edit, popen, run, run_process, snapshot
+from buildkit import SMALL, database, edit, imported_modules, popen, run, run_process, snapshot
 
 # --------------------------------------------------------------------------
 # incremental rebuilds
@@ -38,7 +38,7 @@ def test_no_op_rebuild_imports_no_numerics(tmp_path):
                            "--out", str(out), "--verbose"], cwd=ROOT, capture_output=True, text=True)
     assert proc.returncode == 0, proc.stderr
     assert "up to date" in proc.stderr
-    imported = {line.split("|")[-1].strip() for line in proc.stderr.splitlines() if line.startswith("import time:")}
+    imported = imported_modules(proc.stderr)
     for heavy in ("numpy", "yaml", "scipy", "pandas", "jinja2", "pipeline.species", "pipeline.fit"):
         assert heavy not in imported
 

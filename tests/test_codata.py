@@ -6,7 +6,6 @@ import ast
 import importlib.machinery
 import json
 import os
-import shutil
 import sys
 from pathlib import Path
 from types import SimpleNamespace
@@ -107,22 +106,14 @@ def test_key_follows_scipys_files(tmp_path, monkeypatch):
 
 def test_cold_build_with_a_memo_imports_no_scipy_constants(tmp_path):
     """With the memo in place (as after a first run), a cold build never imports scipy.constants."""
-    import subprocess
-
-    from buildkit import SMALL
-    from refdata import ROOT
+    from buildkit import database, imported_modules, run_process
 
     path = codata.memo_path()
     assert path and codata.write_memo(path, *codata.from_scipy())  # what the first run writes
-    species = tmp_path / "species"
-    species.mkdir()
-    for name in SMALL:
-        shutil.copy(ROOT / "species" / f"{name}.yaml", species / f"{name}.yaml")
-    env = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
-    proc = subprocess.run([sys.executable, "-X", "importtime", "-m", "pipeline", "build", "-q", "--jobs", "1",
-                           "--species", str(species), "--out", str(tmp_path / "out")],
-                          cwd=ROOT, capture_output=True, text=True, env=env)
+    species, _ = database(tmp_path)
+    proc = run_process("build", "-q", "--jobs", "1", "--species", str(species), "--out", str(tmp_path / "cold"),
+                       env={"PYTHONPROFILEIMPORTTIME": "1"})
     assert proc.returncode == 0, proc.stderr
-    imported = {line.split("|")[-1].strip() for line in proc.stderr.splitlines() if line.startswith("import time:")}
+    imported = imported_modules(proc.stderr)
     assert "pipeline.fit" in imported  # it did compute
     assert "scipy.constants" not in imported and "scipy._lib._array_api" not in imported
